@@ -1,0 +1,2 @@
+"""figproof: re-run figure scripts headlessly and check what they drew."""
+__version__ = "0.1.0"

@@ -1,0 +1,74 @@
+"""Findings and the result of one check: what rules report and what reporters render."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from figproof.model import ScriptRun, Serialisable, Source, model
+
+SEVERITIES = ("error", "warning", "note")
+CONFIDENCES = ("certain", "likely", "possible")
+
+
+@model
+class Hit(Serialisable):
+    """What a rule yields: one fact with its counted evidence.
+
+    The engine turns a hit into a :class:`Finding` by adding the rule id, the
+    rule's default severity/confidence (unless the hit overrides them), the
+    figure id and a fallback location.  ``key`` is a short stable detail
+    (e.g. ``"bars:0"``) that makes fingerprints survive unrelated edits.
+    """
+
+    message: str
+    source: Source | None = None
+    axes: int | None = None
+    confidence: str | None = None
+    severity: str | None = None
+    key: str = ""
+
+
+@model
+class Finding(Serialisable):
+    """One reported problem, located in the user's code."""
+
+    rule: str
+    severity: str
+    confidence: str
+    path: str
+    line: int | None = None
+    cell: int | None = None
+    figure: str | None = None
+    axes: int | None = None
+    message: str
+    help: str = ""
+    fingerprint: str = ""
+    accepted: str | None = None  # the reason, when an allow comment or accepted-findings entry covers it
+
+    def sort_key(self) -> tuple[str, int, str, str]:
+        return (self.path, self.line or 0, self.rule, self.message)
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class Summary:
+    scripts: int
+    figures: int
+    errors: int
+    warnings: int
+    notes: int
+    accepted: int
+    passed: bool
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class CheckResult:
+    """Everything one ``figproof check`` produced; reporters render it, policy decided ``passed``."""
+
+    root: str
+    version: str
+    runs: tuple[ScriptRun, ...]
+    findings: tuple[Finding, ...]
+    summary: Summary
+    fail_on: str = "error"
+    artifacts: dict[str, str] = field(default_factory=dict)  # figure id or output path -> image path
+    notes: tuple[str, ...] = ()

@@ -1,0 +1,80 @@
+"""All rules, and the engine that applies them to runs.
+
+Rules are pure: importing this package must not import matplotlib.pyplot
+(a test asserts it).  Each family module ends with ``RULES = (...)``.
+"""
+
+from __future__ import annotations
+
+import hashlib
+from collections.abc import Iterable, Mapping
+
+from figproof.context import RunContext
+from figproof.findings import Finding, Hit
+from figproof.model import FigureModel, ScriptRun, Source
+from figproof.rules import bars, run
+from figproof.rules.base import Rule
+
+RULES: tuple[Rule, ...] = bars.RULES + run.RULES
+
+
+def by_id() -> dict[str, Rule]:
+    """Rules keyed by id, in catalogue order."""
+    return {r.id: r for r in RULES}
+
+
+def fingerprint(rule_id: str, path: str, figure: str | None, axes: int | None, key: str) -> str:
+    """A finding's identity that survives unrelated edits (no line number in it)."""
+    text = "\x1f".join([rule_id, path, figure or "", "" if axes is None else str(axes), key])
+    return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
+def _finding(r: Rule, hit: Hit, *, fallback: Source, figure: str | None, severity: str) -> Finding:
+    src = hit.source or fallback
+    return Finding(
+        rule=r.id,
+        severity=hit.severity or severity,
+        confidence=hit.confidence or r.confidence,
+        path=src.path,
+        line=src.line,
+        cell=src.cell,
+        figure=figure,
+        axes=hit.axes,
+        message=hit.message,
+        help=r.summary,
+        fingerprint=fingerprint(r.id, src.path, figure, hit.axes, hit.key or hit.message),
+    )
+
+
+def apply(
+    runs: Iterable[ScriptRun],
+    context: RunContext,
+    settings: Mapping[str, tuple[str | None, Mapping[str, float]]] | None = None,
+) -> list[Finding]:
+    """Run every enabled rule; ``settings`` maps rule id to (severity or "off", knob overrides)."""
+    settings = settings or {}
+    found: list[Finding] = []
+    for r in RULES:
+        severity, overrides = settings.get(r.id, (None, {}))
+        if severity == "off":
+            continue
+        sev = severity or r.severity
+        knobs = {**r.defaults(), **overrides}
+        for run_ in runs:
+            script = Source(path=run_.path)
+            if r.scope == "run":
+                for hit in r.check(run_, context, knobs):
+                    found.append(_finding(r, hit, fallback=script, figure=None, severity=sev))
+                continue
+            for fig in run_.figures:
+                fallback = fig.source or script
+                for hit in r.check(fig, knobs):
+                    found.append(_finding(r, hit, fallback=fallback, figure=fig.id, severity=sev))
+    return sorted(found, key=Finding.sort_key)
+
+
+def figure_rules() -> tuple[Rule, ...]:
+    return tuple(r for r in RULES if r.scope == "figure")
+
+
+__all__ = ["RULES", "apply", "by_id", "fingerprint", "figure_rules", "FigureModel"]

@@ -1,0 +1,114 @@
+"""The rule record and its decorator.
+
+A rule is one small function plus its documentation.  The decorator builds a
+frozen :class:`Rule` and registers nothing: each family module lists its rules
+in a ``RULES`` tuple and :mod:`figproof.rules` concatenates them.
+"""
+
+from __future__ import annotations
+
+import inspect
+from collections.abc import Callable, Iterator, Mapping
+from dataclasses import dataclass, field
+
+from figproof.findings import CONFIDENCES, SEVERITIES, Hit
+
+Knobs = Mapping[str, float]
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class Knob:
+    """A numeric setting of a rule, configurable under ``[tool.figproof.rules.<id>]``."""
+
+    name: str
+    default: float
+    help: str
+    minimum: float | None = None
+    maximum: float | None = None
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class Rule:
+    """A check with its id, documentation, defaults and worked Bad/Good examples.
+
+    ``scope`` is ``"figure"`` (``check(figure, knobs)``) or ``"run"``
+    (``check(run, repo, knobs)``).  ``bad`` and ``good`` are complete figure
+    scripts: the test suite runs them through the child process and requires
+    that ``bad`` raises the rule and ``good`` does not.
+    """
+
+    id: str
+    summary: str
+    why: str
+    fix: str
+    sources: tuple[str, ...]
+    severity: str
+    confidence: str
+    scope: str
+    knobs: tuple[Knob, ...]
+    bad: str
+    good: str
+    check: Callable[..., Iterator[Hit]] = field(repr=False)
+
+    def defaults(self) -> dict[str, float]:
+        return {k.name: k.default for k in self.knobs}
+
+
+def rule(
+    id: str,
+    *,
+    severity: str,
+    confidence: str,
+    why: str,
+    fix: str,
+    sources: tuple[str, ...],
+    bad: str,
+    good: str,
+    scope: str = "figure",
+    knobs: tuple[Knob, ...] = (),
+) -> Callable[[Callable[..., Iterator[Hit]]], Rule]:
+    """Turn a check function into a :class:`Rule`; its docstring's first line is the summary."""
+    if severity not in SEVERITIES:
+        raise ValueError(f"rule {id}: unknown severity {severity!r}")
+    if confidence not in CONFIDENCES:
+        raise ValueError(f"rule {id}: unknown confidence {confidence!r}")
+    if scope not in ("figure", "run"):
+        raise ValueError(f"rule {id}: unknown scope {scope!r}")
+
+    def wrap(fn: Callable[..., Iterator[Hit]]) -> Rule:
+        doc = inspect.getdoc(fn) or ""
+        summary = doc.splitlines()[0].strip() if doc else id
+        return Rule(
+            id=id,
+            summary=summary,
+            why=inspect.cleandoc(why),
+            fix=inspect.cleandoc(fix),
+            sources=sources,
+            severity=severity,
+            confidence=confidence,
+            scope=scope,
+            knobs=knobs,
+            bad=inspect.cleandoc(bad) + "\n",
+            good=inspect.cleandoc(good) + "\n",
+            check=fn,
+        )
+
+    return wrap
+
+
+def knob(knobs: Knobs, rule_: Rule | None, name: str) -> float:
+    """Read a knob, falling back to the rule's default (helper for tests calling checks directly)."""
+    if name in knobs:
+        return float(knobs[name])
+    if rule_ is not None:
+        return rule_.defaults()[name]
+    raise KeyError(name)
+
+
+def pct(part: int, whole: int) -> str:
+    """Format a share for messages: ``"9 of 24 (38%)"``."""
+    share = 100.0 * part / whole if whole else 0.0
+    return f"{part} of {whole} ({share:.0f}%)"
+
+
+__all__ = ["Knob", "Knobs", "Rule", "knob", "pct", "rule"]
