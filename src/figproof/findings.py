@@ -44,6 +44,7 @@ class Finding(Serialisable):
     help: str = ""
     fingerprint: str = ""
     accepted: str | None = None  # the reason, when an allow comment or accepted-findings entry covers it
+    accepted_by: str | None = None  # "comment" (inline allow) or "file" (accepted-findings entry)
 
     def sort_key(self) -> tuple[str, int, str, str]:
         return (self.path, self.line or 0, self.rule, self.message)
