@@ -178,6 +178,7 @@ class PointSet(Serialisable):
     label: str = ""
     colormap: int | None = None  # index into Axes.colormaps when c= mapped values
     source: Source | None = None
+    draw_order: int | None = None  # index among the axes' children: matplotlib draws equal z-orders in this order
 
 
 @model
@@ -220,6 +221,7 @@ class BarSet(Serialisable):
     label: str = ""
     zorder: float = 1.0
     source: Source | None = None
+    draw_order: int | None = None  # index among the axes' children: matplotlib draws equal z-orders in this order
 
 
 @model
@@ -312,6 +314,7 @@ class Patch(Serialisable):
     zorder: float = 1.0
     label: str = ""
     source: Source | None = None
+    draw_order: int | None = None  # index among the axes' children: matplotlib draws equal z-orders in this order
 
 
 @model
