@@ -36,11 +36,17 @@ Array = np.ndarray
 
 
 class ArrayStore:
-    """Keeps the arrays of one serialised model: in memory, or as .npy files in a folder."""
+    """Keeps the arrays of one serialised model; on disk they are one uncompressed ``arrays.npz``.
+
+    An .npz file is a zip of .npy files; it is read with ``allow_pickle=False``.
+    """
+
+    FILE = "arrays.npz"
 
     def __init__(self, folder: Path | None = None) -> None:
         self.folder = folder
         self.arrays: dict[str, np.ndarray] = {}
+        self._archive: Any = None
 
     def put(self, array: np.ndarray) -> str:
         key = f"a{len(self.arrays)}"
@@ -48,16 +54,23 @@ class ArrayStore:
         if array.dtype == object:
             raise TypeError("object arrays cannot be serialised without pickle")
         self.arrays[key] = array
-        if self.folder is not None:
-            np.save(self.folder / f"{key}.npy", array, allow_pickle=False)
         return key
 
     def get(self, key: str) -> np.ndarray:
         if key not in self.arrays:
             if self.folder is None:
                 raise KeyError(key)
-            self.arrays[key] = np.load(self.folder / f"{key}.npy", allow_pickle=False)
+            if self._archive is None:
+                self._archive = np.load(self.folder / self.FILE, allow_pickle=False)
+            self.arrays[key] = self._archive[key]
         return self.arrays[key]
+
+    def save(self) -> None:
+        """Write every array put so far to ``folder/arrays.npz``."""
+        if self.folder is None:
+            raise ValueError("this store has no folder")
+        with open(self.folder / self.FILE, "wb") as fh:
+            np.savez(fh, **self.arrays)
 
 
 def _encode(value: Any, store: ArrayStore) -> Any:
@@ -407,6 +420,7 @@ class FigureModel(Serialisable):
     render: str | None = None  # path of a PNG rendering in the run's artifact folder
     source: Source | None = None
     notes: tuple[str, ...] = ()
+    texts: tuple[Text, ...] = ()  # figure-level texts (suptitle, fig.text), background = figure face colour
 
 
 @model
@@ -452,10 +466,11 @@ class ScriptRun(Serialisable):
 
 
 def dump_run(run: ScriptRun, folder: Path) -> Path:
-    """Write ``run`` as ``run.json`` plus .npy arrays into ``folder``; return the JSON path."""
+    """Write ``run`` as ``run.json`` plus ``arrays.npz`` into ``folder``; return the JSON path."""
     folder.mkdir(parents=True, exist_ok=True)
     store = ArrayStore(folder)
     data = {"schema": SCHEMA_VERSION, "run": run.to_json(store)}
+    store.save()
     path = folder / "run.json"
     path.write_text(json.dumps(data, sort_keys=True, allow_nan=False), encoding="utf-8")
     return path

@@ -1,0 +1,590 @@
+"""Hooks installed inside the child process before the user's code runs.
+
+This is the only module (with :mod:`figproof.extract` and :mod:`figproof.child`)
+that imports matplotlib.pyplot.  It records, while the script runs:
+
+- every figure created (also ones the script closes or never saves);
+- for every artist added to an Axes, the file:line of the user's code that
+  made it (the first stack frame inside the repo), and whether seaborn or
+  pandas plotting drew it;
+- every savefig output and every file opened, with the user's line;
+- raw numeric arguments of the main plotting calls, the groups handed to
+  matplotlib's box/violin statistics helpers, and the numeric columns of
+  tables the script loads.
+
+Nothing here decides anything; :mod:`figproof.extract` turns the record into
+the model after the script ends.
+"""
+
+from __future__ import annotations
+
+import builtins
+import functools
+import hashlib
+import importlib.abc
+import importlib.machinery
+import io
+import json
+import os
+import re
+import socket
+import sys
+import sysconfig
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from figproof.model import FileEvent, Source
+
+MAX_RECORDED_VALUES = 200_000  # per recorded array; keeps the child→parent message small
+CELL_RE = re.compile(r"^(?P<path>.*)#cell=(?P<cell>\d+)$")
+_LIB_MARKERS = (("seaborn", f"{os.sep}seaborn{os.sep}"), ("pandas", f"{os.sep}pandas{os.sep}plotting{os.sep}"))
+_PLOT_CALLS = ("bar", "barh", "hist", "scatter", "plot", "errorbar", "boxplot", "violinplot", "imshow",
+               "pcolormesh", "stem", "step", "fill_between")
+
+
+class NetworkRefused(PermissionError):
+    """Raised inside the child when a script tries the network while it is off."""
+
+
+@dataclass
+class Recorder:
+    """Mutable record of one script run, owned by the child process only."""
+
+    sandbox: Path
+    script: str  # repo-relative
+    events_path: Path | None = None
+    figures: list[Any] = field(default_factory=list)
+    figure_sources: dict[int, Source | None] = field(default_factory=dict)
+    outputs: dict[int, list[str]] = field(default_factory=dict)
+    calls: list[tuple[Any, str, dict[str, np.ndarray], Source | None]] = field(default_factory=list)
+    samples: list[tuple[np.ndarray, str, Source | None]] = field(default_factory=list)
+    boxplots: list[tuple[Any, list[dict[str, Any]], dict[str, Any], bool, Source | None]] = field(default_factory=list)
+    violins: list[tuple[Any, list[dict[str, Any]], dict[str, Any], bool, Source | None]] = field(default_factory=list)
+    tables: list[tuple[str, str, dict[str, np.ndarray], bool, Source | None]] = field(default_factory=list)
+    events: list[FileEvent] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+    _skip_dirs: tuple[str, ...] = ()
+    _file_cache: dict[str, str | None] = field(default_factory=dict)
+    _busy: bool = False
+
+    def __post_init__(self) -> None:
+        here = str(Path(__file__).resolve().parent)
+        paths = {sysconfig.get_paths().get(k, "") for k in ("purelib", "platlib", "stdlib")}
+        self._skip_dirs = tuple(p for p in (here, *paths) if p)
+
+    # ---- locations -------------------------------------------------------
+
+    def repo_path(self, filename: str) -> str | None:
+        """Repo-relative POSIX path for a code file name, or None when it is not user code."""
+        cached = self._file_cache.get(filename, "?")
+        if cached != "?":
+            return cached
+        result: str | None = None
+        raw = filename
+        m = CELL_RE.match(filename)
+        if m:
+            raw = m.group("path")
+        try:
+            if not os.path.isabs(raw):
+                raise ValueError(raw)  # "<frozen ...>", "<string>" and friends are not user files
+            resolved = Path(raw).resolve()
+            rel = resolved.relative_to(self.sandbox)
+            if not str(resolved).startswith(self._skip_dirs) and "site-packages" not in rel.parts:
+                result = rel.as_posix()
+        except (ValueError, OSError):
+            result = None
+        self._file_cache[filename] = result
+        return result
+
+    def user_source(self, depth: int = 2) -> tuple[Source | None, str]:
+        """First stack frame in the user's code, and which plotting library (if any) sits between."""
+        frame = sys._getframe(depth)
+        lib = ""
+        while frame is not None:
+            name = frame.f_code.co_filename
+            rel = self.repo_path(name)
+            if rel is not None:
+                m = CELL_RE.match(name)
+                cell = int(m.group("cell")) if m else None
+                return Source(path=rel, line=frame.f_lineno, cell=cell), lib
+            if not lib:
+                for label, marker in _LIB_MARKERS:
+                    if marker in name:
+                        lib = label
+            frame = frame.f_back
+        return None, lib
+
+    # ---- events ----------------------------------------------------------
+
+    def event(self, ev: FileEvent) -> None:
+        self.events.append(ev)
+        if self.events_path is not None:
+            # one line per event, flushed now: survives os._exit and crashes
+            with _REAL_OPEN(self.events_path, "a", encoding="utf-8") as fh:
+                fh.write(json.dumps(ev.to_json(), sort_keys=True) + "\n")
+
+    def classify(self, path: Any) -> tuple[str, bool] | None:
+        """(display path, inside repo) for a file path argument, or None when not a path."""
+        if isinstance(path, int) or not isinstance(path, (str, bytes, os.PathLike)):
+            return None
+        text = os.fsdecode(path)
+        if text.startswith(("http://", "https://", "ftp://", "s3://", "gs://")):
+            return text, False
+        resolved = Path(text).resolve()
+        try:
+            rel = resolved.relative_to(self.sandbox).as_posix()
+        except ValueError:
+            return text, False
+        return rel, True
+
+
+_REAL_OPEN = builtins.open
+
+
+def _sha256(path: Path) -> str | None:
+    try:
+        h = hashlib.sha256()
+        with _REAL_OPEN(path, "rb") as fh:
+            for chunk in iter(lambda: fh.read(1 << 20), b""):
+                h.update(chunk)
+        return h.hexdigest()
+    except OSError:
+        return None
+
+
+def _system_prefixes() -> tuple[str, ...]:
+    import tempfile
+
+    roots = {sys.prefix, sys.base_prefix, sys.exec_prefix, tempfile.gettempdir()}
+    return tuple(sorted(r.rstrip(os.sep) + os.sep for r in roots if r)) + (
+        "/dev/", "/proc/", "/sys/", "/etc/", "/usr/", "/lib/", "/lib64/", "/var/lib/")
+
+
+_SYSTEM = _system_prefixes()
+
+
+def _is_temp(path: Path) -> bool:
+    """Scratch and system locations: reads there are the libraries' business, writes are allowed."""
+    return str(path).startswith(_SYSTEM)
+
+
+# --------------------------------------------------------------------------
+# file access, network, input
+# --------------------------------------------------------------------------
+
+
+def install_io_hooks(rec: Recorder, *, network: bool) -> None:
+    """Record file opens, refuse writes outside the sandbox, refuse the network, close input()."""
+
+    def guarded_open(file: Any, mode: str = "r", *args: Any, **kwargs: Any) -> Any:
+        if rec._busy:
+            return _REAL_OPEN(file, mode, *args, **kwargs)
+        info = rec.classify(file)
+        if info is None:
+            return _REAL_OPEN(file, mode, *args, **kwargs)
+        shown, inside = info
+        writing = any(c in mode for c in "wax+")
+        resolved = Path(os.fsdecode(file)).resolve()
+        if not inside and _is_temp(resolved):
+            return _REAL_OPEN(file, mode, *args, **kwargs)  # scratch files in the temp folder are fine
+        src, _ = rec.user_source(2)
+        if writing and not inside:
+            rec.event(FileEvent(action="blocked-write", path=shown, inside_repo=False, exists=resolved.exists(),
+                                source=src))
+            raise PermissionError(f"figproof: writing outside the repo is blocked during a check: {shown}")
+        try:
+            handle = _REAL_OPEN(file, mode, *args, **kwargs)
+        except FileNotFoundError:
+            if src is not None and not writing:
+                rec.event(FileEvent(action="missing", path=shown, inside_repo=inside, exists=False, source=src))
+            raise
+        if src is not None:
+            if writing:
+                rec.event(FileEvent(action="write", path=shown, inside_repo=inside, source=src))
+            elif resolved.is_file():
+                rec._busy = True
+                try:
+                    digest = _sha256(resolved)
+                finally:
+                    rec._busy = False
+                rec.event(FileEvent(action="read", path=shown, inside_repo=inside, sha256=digest, source=src))
+        return handle
+
+    builtins.open = guarded_open
+    io.open = guarded_open
+
+    def closed_input(prompt: Any = "") -> str:
+        src, _ = rec.user_source(2)
+        rec.notes.append("needs-input")
+        raise EOFError(f"figproof: the script asked for keyboard input at {src}; standard input is closed")
+
+    builtins.input = closed_input
+
+    if not network:
+        def refuse(*args: Any, **kwargs: Any) -> Any:
+            src, _ = rec.user_source(2)
+            target = args[1] if len(args) > 1 else (args[0] if args else "")
+            rec.event(FileEvent(action="network", path=str(target)[:200], inside_repo=False, exists=False,
+                                source=src))
+            raise NetworkRefused(f"figproof: network access is off during a check (tried {target!r})")
+
+        socket.socket.connect = refuse  # type: ignore[method-assign]
+        socket.socket.connect_ex = refuse  # type: ignore[method-assign]
+        socket.create_connection = refuse  # type: ignore[assignment]
+        socket.getaddrinfo = lambda *a, **k: refuse(None, a[0] if a else "")  # type: ignore[assignment]
+
+
+# --------------------------------------------------------------------------
+# post-import hooks (pandas is patched only if the script imports it)
+# --------------------------------------------------------------------------
+
+
+class _PostImportFinder(importlib.abc.MetaPathFinder):
+    def __init__(self, hooks: dict[str, Callable[[Any], None]]) -> None:
+        self.hooks = hooks
+
+    def find_spec(self, name: str, path: Any = None, target: Any = None) -> Any:
+        if name not in self.hooks:
+            return None
+        hook = self.hooks.pop(name)
+        spec = importlib.machinery.PathFinder.find_spec(name, path)
+        if spec is None or spec.loader is None:
+            return None
+        real_exec = spec.loader.exec_module
+
+        def exec_module(module: Any) -> None:
+            real_exec(module)
+            hook(module)
+
+        spec.loader.exec_module = exec_module  # type: ignore[method-assign]
+        return spec
+
+
+def _numeric_columns(obj: Any) -> tuple[dict[str, np.ndarray], bool]:
+    cols: dict[str, np.ndarray] = {}
+    truncated = False
+    try:
+        import pandas as pd
+
+        if isinstance(obj, pd.DataFrame):
+            for name in obj.columns:
+                series = obj[name]
+                if getattr(series, "ndim", 1) != 1:
+                    continue
+                if pd.api.types.is_numeric_dtype(series) and not pd.api.types.is_bool_dtype(series):
+                    values = series.to_numpy(dtype=float, na_value=np.nan)
+                    truncated |= values.size > MAX_RECORDED_VALUES
+                    cols[str(name)] = values[:MAX_RECORDED_VALUES]
+            return cols, truncated
+    except ImportError:
+        pass
+    arr = np.asarray(obj) if isinstance(obj, np.ndarray) else None
+    if arr is not None and arr.dtype.kind in "fiu" and arr.ndim in (1, 2):
+        arr2 = arr.reshape(-1, 1) if arr.ndim == 1 else arr
+        for j in range(min(arr2.shape[1], 64)):
+            values = arr2[:, j].astype(float)
+            truncated |= values.size > MAX_RECORDED_VALUES
+            cols[str(j)] = values[:MAX_RECORDED_VALUES]
+    return cols, truncated
+
+
+def _wrap_loader(rec: Recorder, module: Any, name: str) -> None:
+    real = getattr(module, name, None)
+    if real is None or getattr(real, "_figproof", False):
+        return
+
+    @functools.wraps(real)
+    def loader(*args: Any, **kwargs: Any) -> Any:
+        result = real(*args, **kwargs)
+        target = args[0] if args else next(iter(kwargs.values()), None)
+        info = rec.classify(target)
+        if info is not None:
+            try:
+                cols, truncated = _numeric_columns(result)
+            except Exception:  # noqa: BLE001 - recording must never break the user's script
+                cols, truncated = {}, False
+            if cols:
+                src, _ = rec.user_source(2)
+                rec.tables.append((info[0], f"{module.__name__.split('.')[0]}.{name}", cols, truncated, src))
+        return result
+
+    loader._figproof = True  # type: ignore[attr-defined]
+    setattr(module, name, loader)
+
+
+def install_loader_hooks(rec: Recorder) -> None:
+    """Record numeric columns of tables loaded with numpy and pandas readers."""
+    for name in ("load", "loadtxt", "genfromtxt"):
+        _wrap_loader(rec, np, name)
+
+    def patch_pandas(pd: Any) -> None:
+        for name in ("read_csv", "read_table", "read_excel", "read_parquet", "read_feather", "read_json",
+                     "read_fwf", "read_hdf", "read_pickle", "read_stata", "read_spss", "read_sas"):
+            _wrap_loader(rec, pd, name)
+
+    if "pandas" in sys.modules:
+        patch_pandas(sys.modules["pandas"])
+    else:
+        sys.meta_path.insert(0, _PostImportFinder({"pandas": patch_pandas}))
+
+
+# --------------------------------------------------------------------------
+# matplotlib hooks
+# --------------------------------------------------------------------------
+
+
+def _as_array(value: Any) -> np.ndarray | None:
+    try:
+        if isinstance(value, (str, bytes)) or value is None:
+            return None
+        arr = np.ma.asarray(value)
+        if arr.dtype.kind not in "fiub" or arr.ndim > 2 or arr.size == 0:
+            return None
+        out = np.ma.filled(arr.astype(float), np.nan).ravel()
+        return out[:MAX_RECORDED_VALUES]
+    except Exception:  # noqa: BLE001 - odd user input must not break recording
+        return None
+
+
+def _record_arrays(name: str, args: tuple[Any, ...], kwargs: dict[str, Any]) -> dict[str, np.ndarray]:
+    arrays: dict[str, np.ndarray] = {}
+    positional = {
+        "bar": ("x", "height", "width", "bottom"),
+        "barh": ("y", "width", "height", "left"),
+        "scatter": ("x", "y", "s", "c"),
+        "errorbar": ("x", "y", "yerr", "xerr"),
+        "fill_between": ("x", "y1", "y2"),
+        "stem": ("x", "y"),
+        "step": ("x", "y"),
+    }.get(name, ())
+    if name in ("hist", "boxplot", "violinplot"):
+        data = args[0] if args else kwargs.get("x", kwargs.get("dataset"))
+        groups = _groups(data)
+        for i, g in enumerate(groups[:200]):
+            arrays[f"x{i}"] = g
+        return arrays
+    if name == "plot":
+        for i, a in enumerate(args[:3]):
+            arr = _as_array(a)
+            if arr is not None:
+                arrays[f"arg{i}"] = arr
+        return arrays
+    if name in ("imshow", "pcolormesh"):
+        return arrays
+    for key, value in zip(positional, args, strict=False):
+        arr = _as_array(value)
+        if arr is not None:
+            arrays[key] = arr
+    for key in ("x", "y", "height", "width", "bottom", "left", "yerr", "xerr", "s", "c", "y1", "y2"):
+        if key in kwargs:
+            arr = _as_array(kwargs[key])
+            if arr is not None:
+                arrays[key] = arr
+    return arrays
+
+
+def _groups(data: Any) -> list[np.ndarray]:
+    """Split hist/boxplot/violinplot data into its groups, as matplotlib does."""
+    if data is None:
+        return []
+    try:
+        if hasattr(data, "to_numpy") and getattr(data, "ndim", 1) == 2:
+            data = data.to_numpy(dtype=float).T
+        if isinstance(data, np.ndarray) and data.dtype != object:
+            arr = np.asarray(data, float)
+            if arr.ndim == 1:
+                return [arr[:MAX_RECORDED_VALUES]]
+            return [np.asarray(c, float)[:MAX_RECORDED_VALUES] for c in arr.T]
+        seq = list(data)
+        if seq and np.ndim(seq[0]) == 0:
+            arr = _as_array(seq)
+            return [arr] if arr is not None else []
+        return [a for a in (_as_array(s) for s in seq) if a is not None]
+    except Exception:  # noqa: BLE001
+        return []
+
+
+def install_matplotlib_hooks(rec: Recorder) -> None:
+    """Pin the Agg backend and wrap the Axes/Figure methods that capture needs."""
+    import matplotlib
+
+    matplotlib.use("Agg", force=True)
+    import matplotlib.axes
+    import matplotlib.cbook
+    import matplotlib.figure
+    import matplotlib.pyplot as plt
+
+    plt.switch_backend("agg")
+    matplotlib.rcParams["svg.hashsalt"] = "figproof"
+
+    def ignore_backend(*args: Any, **kwargs: Any) -> None:
+        asked = str(args[0] if args else kwargs.get("backend", "?"))
+        if asked.lower() != "agg":
+            rec.notes.append(f"the script asked for the {asked} backend; figproof kept Agg")
+
+    matplotlib.use = ignore_backend  # type: ignore[assignment]
+    plt.switch_backend = ignore_backend  # type: ignore[assignment]
+    plt.show = lambda *a, **k: None  # type: ignore[assignment]
+    plt.pause = lambda *a, **k: None  # type: ignore[assignment]
+
+    Axes = matplotlib.axes.Axes
+    Figure = matplotlib.figure.Figure
+
+    real_init = Figure.__init__
+
+    @functools.wraps(real_init)
+    def figure_init(self: Any, *args: Any, **kwargs: Any) -> None:
+        real_init(self, *args, **kwargs)
+        rec.figures.append(self)  # a strong reference keeps figures the script closes
+        rec.figure_sources[id(self)] = rec.user_source(2)[0]
+
+    Figure.__init__ = figure_init  # type: ignore[method-assign]
+
+    real_savefig = Figure.savefig
+
+    @functools.wraps(real_savefig)
+    def savefig(self: Any, fname: Any, *args: Any, **kwargs: Any) -> Any:
+        info = rec.classify(fname)
+        src, _ = rec.user_source(2)
+        if info is not None:
+            shown, inside = info
+            if not inside and not _is_temp(Path(os.fsdecode(fname)).resolve()):
+                rec.event(FileEvent(action="blocked-write", path=shown, inside_repo=False, source=src))
+                raise PermissionError(f"figproof: saving outside the repo is blocked during a check: {shown}")
+        rec._busy = True
+        try:
+            result = real_savefig(self, fname, *args, **kwargs)
+        finally:
+            rec._busy = False
+        if info is not None:
+            fmt = kwargs.get("format") or Path(os.fsdecode(fname)).suffix.lstrip(".").lower() or "png"
+            rec.outputs.setdefault(id(self), []).append(info[0])
+            rec.event(FileEvent(action="save", path=info[0], inside_repo=info[1], format=fmt, source=src))
+        return result
+
+    Figure.savefig = savefig  # type: ignore[method-assign]
+
+    def tag_source(method_name: str) -> None:
+        real = getattr(Axes, method_name)
+
+        @functools.wraps(real)
+        def add(self: Any, artist: Any, *args: Any, **kwargs: Any) -> Any:
+            if getattr(artist, "_figproof_source", None) is None:
+                src, lib = rec.user_source(2)
+                try:
+                    artist._figproof_source = src
+                    artist._figproof_lib = lib
+                except AttributeError:
+                    pass
+            return real(self, artist, *args, **kwargs)
+
+        setattr(Axes, method_name, add)
+
+    for name in ("add_artist", "add_collection", "add_line", "add_patch", "add_image", "add_table",
+                 "add_container", "_add_text"):
+        if hasattr(Axes, name):
+            tag_source(name)
+
+    def record_call(method_name: str) -> None:
+        real = getattr(Axes, method_name)
+
+        @functools.wraps(real)
+        def call(self: Any, *args: Any, **kwargs: Any) -> Any:
+            if rec._busy:
+                return real(self, *args, **kwargs)
+            src, lib = rec.user_source(2)
+            rec._busy = True  # nested plotting calls (hist -> bar) are recorded once, as the outer call
+            try:
+                result = real(self, *args, **kwargs)
+            finally:
+                rec._busy = False
+            try:
+                rec.calls.append((self, method_name, _record_arrays(method_name, args, kwargs), src))
+                if method_name == "hist":
+                    _tag_hist(result)
+            except Exception:  # noqa: BLE001
+                pass
+            return result
+
+        setattr(Axes, method_name, call)
+
+    for name in _PLOT_CALLS:
+        if hasattr(Axes, name):
+            record_call(name)
+
+    real_bxp = Axes.bxp
+
+    @functools.wraps(real_bxp)
+    def bxp(self: Any, bxpstats: Any, positions: Any = None, *args: Any, **kwargs: Any) -> Any:
+        result = real_bxp(self, bxpstats, positions, *args, **kwargs)
+        vertical = _is_vertical(kwargs)
+        try:
+            stats = [dict(s) for s in bxpstats]
+            if positions is None:
+                positions = range(1, len(stats) + 1)
+            for s, p in zip(stats, positions, strict=False):
+                s["_position"] = float(p)
+            rec.boxplots.append((self, stats, result, vertical, rec.user_source(2)[0]))
+        except Exception:  # noqa: BLE001
+            pass
+        return result
+
+    Axes.bxp = bxp  # type: ignore[method-assign]
+
+    real_violin = Axes.violin
+
+    @functools.wraps(real_violin)
+    def violin(self: Any, vpstats: Any, positions: Any = None, *args: Any, **kwargs: Any) -> Any:
+        result = real_violin(self, vpstats, positions, *args, **kwargs)
+        try:
+            stats = [dict(s) for s in vpstats]
+            if positions is None:
+                positions = range(1, len(stats) + 1)
+            for s, p in zip(stats, positions, strict=False):
+                s["_position"] = float(p)
+            rec.violins.append((self, stats, result, _is_vertical(kwargs), rec.user_source(2)[0]))
+        except Exception:  # noqa: BLE001
+            pass
+        return result
+
+    Axes.violin = violin  # type: ignore[method-assign]
+
+    def stats_helper(name: str, origin: str) -> None:
+        real = getattr(matplotlib.cbook, name)
+
+        @functools.wraps(real)
+        def helper(X: Any, *args: Any, **kwargs: Any) -> Any:
+            result = real(X, *args, **kwargs)
+            src, _ = rec.user_source(2)
+            for g in _groups(X):
+                rec.samples.append((g, origin, src))
+            return result
+
+        setattr(matplotlib.cbook, name, helper)
+
+    stats_helper("boxplot_stats", "boxplot_stats")
+    stats_helper("violin_stats", "violin_stats")
+
+
+def _is_vertical(kwargs: dict[str, Any]) -> bool:
+    if "orientation" in kwargs:
+        return kwargs["orientation"] != "horizontal"
+    return bool(kwargs.get("vert", True))
+
+
+def _tag_hist(result: Any) -> None:
+    patches = result[2] if isinstance(result, tuple) and len(result) == 3 else None
+    containers = patches if isinstance(patches, list) else [patches]
+    for c in containers:
+        if c is None:
+            continue
+        try:
+            c._figproof_hist = True
+            for p in c:
+                p._figproof_hist = True
+        except (TypeError, AttributeError):
+            pass

@@ -1,0 +1,228 @@
+"""Entry point of the child process that runs one figure script: ``python -m figproof.child SPEC``.
+
+The parent (:mod:`figproof.execute`) writes a JSON spec, starts this module in
+a new session with stdout/stderr sent to files and stdin closed, and reads
+back ``run.json`` (plus .npy arrays) from the spec's output folder.  Events
+(files opened, figures saved) are appended to ``events.jsonl`` as they happen,
+so the parent still learns them when the script kills the process.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import re
+import sys
+import time
+import traceback
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+CAPTURE_LIMIT = 1 << 20  # bytes of the script's own stdout/stderr kept per stream
+MAGIC_RE = re.compile(r"^\s*([%!]|\?\w|\w+\?$)")
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class Spec:
+    script: str  # repo-relative
+    sandbox: str  # absolute path of the repo copy
+    cwd: str
+    out: str
+    memory_limit: int = 0  # MiB, 0 = none
+    network: bool = False
+
+    @classmethod
+    def read(cls, path: Path) -> Spec:
+        return cls(**json.loads(path.read_text(encoding="utf-8")))
+
+
+class _CappedStream:
+    """A text stream that keeps at most ``limit`` characters and drops the rest (the script may print a lot)."""
+
+    def __init__(self, stream: Any, limit: int) -> None:
+        self._stream = stream
+        self._left = limit
+        self._noted = False
+
+    def write(self, text: str) -> int:
+        if self._left > 0:
+            chunk = text[: self._left]
+            self._left -= len(chunk)
+            self._stream.write(chunk)
+        elif not self._noted:
+            self._noted = True
+            self._stream.write("\n[figproof: output capped]\n")
+        return len(text)
+
+    def flush(self) -> None:
+        self._stream.flush()
+
+    def __getattr__(self, name: str) -> Any:
+        return getattr(self._stream, name)
+
+
+def limit_memory(mib: int) -> bool:
+    """Cap the address space of this process; False when the platform does not allow it."""
+    if mib <= 0:
+        return False
+    try:
+        import resource
+
+        limit = mib * 1024 * 1024
+        resource.setrlimit(resource.RLIMIT_AS, (limit, limit))
+        return True
+    except (ImportError, ValueError, OSError):
+        return False
+
+
+def notebook_cells(path: Path) -> list[tuple[int, str, int]]:
+    """Code cells of a notebook as (index, source, magic lines skipped); raises ValueError when unreadable."""
+    import nbformat
+
+    try:
+        nb = nbformat.read(str(path), as_version=4)
+    except Exception as exc:  # nbformat raises several types for corrupt files
+        raise ValueError(f"cannot read notebook: {str(exc).splitlines()[0] if str(exc) else type(exc).__name__}")
+    cells = []
+    for index, cell in enumerate(nb.cells):
+        if cell.get("cell_type") != "code":
+            continue
+        lines = cell.get("source", "").splitlines()
+        skipped = 0
+        for i, text in enumerate(lines):
+            if MAGIC_RE.match(text):
+                # keep the line count so findings point at the right line
+                lines[i] = ""
+                skipped += 1
+        cells.append((index, "\n".join(lines) + "\n", skipped))
+    return cells
+
+
+def _user_frame(tb: Any, rec: Any) -> Any:
+    from figproof.capture import CELL_RE
+    from figproof.model import Source
+
+    found = None
+    for frame, lineno in traceback.walk_tb(tb):
+        name = frame.f_code.co_filename
+        rel = rec.repo_path(name)
+        if rel is not None:
+            m = CELL_RE.match(name)
+            found = Source(path=rel, line=lineno, cell=int(m.group("cell")) if m else None)
+    return found
+
+
+def run_user_code(spec: Spec, rec: Any) -> Any:
+    """Execute the script or notebook; return a ScriptError or None."""
+    from figproof.capture import NetworkRefused
+    from figproof.model import ScriptError
+
+    path = Path(spec.sandbox) / spec.script
+    try:
+        if path.suffix == ".ipynb":
+            _run_notebook(path, rec)
+        else:
+            _run_script(path)
+    except SystemExit as exc:
+        code = exc.code
+        if code in (None, 0):
+            return None
+        return ScriptError(kind="exit", type="SystemExit", message=f"exit status {code}",
+                           source=_user_frame(exc.__traceback__, rec))
+    except MemoryError as exc:
+        return ScriptError(kind="memory", type="MemoryError", message=str(exc)[:300],
+                           source=_user_frame(exc.__traceback__, rec))
+    except BaseException as exc:  # noqa: BLE001 - any failure of user code is reported, not raised
+        kind = "exception"
+        if isinstance(exc, EOFError) and "needs-input" in rec.notes:
+            kind = "needs-input"
+        message = str(exc).strip().splitlines()[0][:300] if str(exc).strip() else ""
+        if isinstance(exc, NetworkRefused):
+            message = message.removeprefix("figproof: ")
+        return ScriptError(kind=kind, type=type(exc).__name__, message=message,
+                           source=_user_frame(exc.__traceback__, rec))
+    return None
+
+
+def _run_script(path: Path) -> None:
+    import runpy
+
+    sys.argv = [str(path)]
+    sys.path.insert(0, str(path.parent))
+    runpy.run_path(str(path), run_name="__main__")
+
+
+def _run_notebook(path: Path, rec: Any) -> None:
+    cells = notebook_cells(path)
+    namespace: dict[str, Any] = {"__name__": "__main__", "__file__": str(path), "display": _display}
+    sys.argv = [str(path)]
+    sys.path.insert(0, str(path.parent))
+    for index, source, skipped in cells:
+        if skipped:
+            rec.notes.append(f"cell {index}: skipped {skipped} IPython magic or shell line(s)")
+        code = compile(source, f"{path}#cell={index}", "exec")
+        exec(code, namespace)  # noqa: S102 - running the user's notebook is the job
+
+
+def _display(*objs: Any, **kwargs: Any) -> None:
+    """Stand-in for IPython's display(): figures are captured anyway."""
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Run one script under capture and write its run record."""
+    argv = sys.argv[1:] if argv is None else argv
+    spec = Spec.read(Path(argv[0]))
+    out = Path(spec.out)
+    started = time.perf_counter()
+    isolation = ["repo-copy"]
+    if limit_memory(spec.memory_limit):
+        isolation.append("memory-cap")
+    if not spec.network:
+        isolation.append("network-off")
+    sys.stdout = _CappedStream(sys.stdout, CAPTURE_LIMIT)
+    sys.stderr = _CappedStream(sys.stderr, CAPTURE_LIMIT)
+
+    from figproof import capture
+
+    rec = capture.Recorder(sandbox=Path(spec.sandbox).resolve(), script=spec.script,
+                           events_path=out / "events.jsonl")
+    capture.install_io_hooks(rec, network=spec.network)
+    capture.install_loader_hooks(rec)
+    capture.install_matplotlib_hooks(rec)
+    os.chdir(spec.cwd)
+    error = run_user_code(spec, rec)
+    seconds = time.perf_counter() - started
+    _finish(spec, rec, error, seconds, tuple(isolation))
+    sys.stdout.flush()
+    sys.stderr.flush()
+    # threads the script left running must not keep the child alive
+    os._exit(0)
+
+
+def _finish(spec: Spec, rec: Any, error: Any, seconds: float, isolation: tuple[str, ...]) -> None:
+    from figproof.extract import extract_figure
+    from figproof.model import ScriptRun, dump_run
+
+    out = Path(spec.out)
+    figures = []
+    notes = list(dict.fromkeys(n for n in rec.notes if n != "needs-input"))
+    renders = out / "renders"
+    renders.mkdir(exist_ok=True)
+    for number, fig in enumerate(rec.figures, start=1):
+        try:
+            figures.append(extract_figure(fig, number, rec, renders / f"figure-{number}.png"))
+        except MemoryError:
+            notes.append(f"figure {number}: ran out of memory while drawing it")
+        except Exception as exc:  # noqa: BLE001 - one undrawable figure must not lose the others
+            notes.append(f"figure {number} could not be drawn: {type(exc).__name__}: {str(exc)[:200]}")
+    status = "ok" if error is None else ("memory" if error.kind == "memory" else "failed")
+    run = ScriptRun(path=spec.script, status=status, seconds=round(seconds, 3),
+                    working_dir="script" if Path(spec.cwd).resolve() != Path(spec.sandbox).resolve() else "root",
+                    error=error, figures=tuple(figures), events=tuple(rec.events), isolation=isolation,
+                    notes=tuple(notes))
+    dump_run(run, out)
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,275 @@
+"""Run figure scripts in contained child processes, in parallel, and collect their runs.
+
+Containment (best effort, not a security boundary):
+
+- each script runs on its own temporary copy of the repo, so the user's
+  working tree is never written;
+- the child starts in a new session; on timeout the parent kills the whole
+  process group (SIGTERM, a short grace, SIGKILL, reap), and after a normal
+  exit it kills what the script left behind in that group;
+- stdout/stderr go to files, never pipes, so a grandchild holding them open
+  cannot hang figproof; the child caps what it writes;
+- stdin is closed; the memory cap and the network block are set inside the
+  child (see :mod:`figproof.child`).
+
+A :class:`Runner` runs one task.  :class:`FreshInterpreter` starts a new
+Python for every script; a warm pool of pre-imported workers can replace it
+without changing callers of :func:`execute_all`.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import signal
+import subprocess
+import sys
+import tempfile
+import time
+from collections.abc import Callable, Iterable, Sequence
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass, replace
+from pathlib import Path
+from typing import Protocol
+
+from figproof.model import FileEvent, ScriptError, ScriptRun, load_run
+
+GRACE_SECONDS = 1.0
+TAIL_BYTES = 4000
+COPY_IGNORE = (".git", ".hg", ".svn", ".venv", "venv", "__pycache__", "node_modules", ".figproof-cache",
+               ".pytest_cache", ".mypy_cache", ".ipynb_checkpoints", ".tox", ".nox", "*.egg-info")
+_SIGNAL_NAMES = {getattr(signal, n): n for n in ("SIGSEGV", "SIGABRT", "SIGBUS", "SIGFPE", "SIGILL", "SIGKILL",
+                                                  "SIGTERM") if hasattr(signal, n)}
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class Task:
+    """One script to run: repo-relative path and the working directory mode chosen for it."""
+
+    script: str
+    working_dir: str = "root"  # root | script
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class Options:
+    """How to run tasks; ``artifacts`` receives one folder per script (model, renders, regenerated files)."""
+
+    root: Path
+    artifacts: Path
+    timeout: float = 120.0
+    memory_limit: int = 4096
+    network: bool = False
+    jobs: int = 1
+    skip_copy: tuple[str, ...] = ()  # extra repo-relative folders not to copy (e.g. the report folder)
+
+
+class Runner(Protocol):
+    def run(self, task: Task, options: Options) -> ScriptRun: ...
+
+
+def child_env(mplconfig: Path) -> dict[str, str]:
+    """Environment of the child: headless, deterministic, single-threaded maths."""
+    env = dict(os.environ)
+    for key in ("PYTHONSTARTUP", "PYTHONINSPECT", "MPLBACKEND", "DISPLAY", "WAYLAND_DISPLAY"):
+        env.pop(key, None)
+    src = str(Path(__file__).resolve().parent.parent)
+    env["PYTHONPATH"] = src + (os.pathsep + env["PYTHONPATH"] if env.get("PYTHONPATH") else "")
+    env.update({
+        "MPLBACKEND": "Agg",
+        "MPLCONFIGDIR": str(mplconfig),
+        "SOURCE_DATE_EPOCH": os.environ.get("SOURCE_DATE_EPOCH", "0"),
+        "PYTHONHASHSEED": "0",
+        "TZ": "UTC",
+        "PYTHONUNBUFFERED": "1",
+        "PYTHONDONTWRITEBYTECODE": "1",
+        "OMP_NUM_THREADS": "1",
+        "OPENBLAS_NUM_THREADS": "1",
+        "MKL_NUM_THREADS": "1",
+        "NUMEXPR_NUM_THREADS": "1",
+        "VECLIB_MAXIMUM_THREADS": "1",
+    })
+    return env
+
+
+def copy_repo(root: Path, dest: Path, skip: Sequence[str] = ()) -> None:
+    """Copy the repo to ``dest`` without VCS folders, virtual environments and caches."""
+    skipped = {(root / s).resolve() for s in skip}
+
+    def ignore(folder: str, names: list[str]) -> set[str]:
+        base = Path(folder)
+        out = set(shutil.ignore_patterns(*COPY_IGNORE)(folder, names))
+        for n in names:
+            p = base / n
+            if p.resolve() in skipped or (p.is_dir() and (p / "pyvenv.cfg").exists()):
+                out.add(n)
+        return out
+
+    shutil.copytree(root, dest, ignore=ignore, symlinks=True)
+
+
+def _tail(path: Path) -> str:
+    try:
+        size = path.stat().st_size
+        with open(path, "rb") as fh:
+            fh.seek(max(0, size - TAIL_BYTES))
+            return fh.read().decode("utf-8", "replace")
+    except OSError:
+        return ""
+
+
+def _events(path: Path) -> tuple[FileEvent, ...]:
+    out = []
+    try:
+        for line in path.read_text(encoding="utf-8").splitlines():
+            try:
+                out.append(FileEvent.from_json(json.loads(line)))
+            except (ValueError, TypeError, KeyError):
+                continue
+    except OSError:
+        pass
+    return tuple(out)
+
+
+def kill_group(proc: subprocess.Popen[bytes], grace: float = GRACE_SECONDS) -> None:
+    """Terminate the child's whole process group, then reap the child."""
+    for sig, wait in ((signal.SIGTERM, grace), (signal.SIGKILL, None)):
+        try:
+            os.killpg(proc.pid, sig)
+        except (ProcessLookupError, PermissionError):
+            break
+        if wait is None:
+            break
+        try:
+            proc.wait(timeout=wait)
+            # the child is gone; its group may still hold grandchildren
+            try:
+                os.killpg(proc.pid, signal.SIGKILL)
+            except (ProcessLookupError, PermissionError):
+                pass
+            break
+        except subprocess.TimeoutExpired:
+            continue
+    try:
+        proc.wait(timeout=5)
+    except subprocess.TimeoutExpired:
+        pass
+
+
+class FreshInterpreter:
+    """Start a new Python interpreter for every script (works everywhere; the slow but simple mode)."""
+
+    def __init__(self, python: str | None = None) -> None:
+        self.python = python or sys.executable
+
+    def run(self, task: Task, options: Options) -> ScriptRun:
+        out = options.artifacts / _slug(task.script)
+        if out.exists():
+            shutil.rmtree(out)
+        out.mkdir(parents=True)
+        with tempfile.TemporaryDirectory(prefix="figproof-") as tmp:
+            sandbox = Path(tmp) / "repo"
+            copy_repo(options.root, sandbox, options.skip_copy)
+            mplconfig = Path(tmp) / "mplconfig"
+            mplconfig.mkdir()
+            cwd = sandbox if task.working_dir == "root" else (sandbox / task.script).parent
+            spec = {"script": task.script, "sandbox": str(sandbox), "cwd": str(cwd), "out": str(out),
+                    "memory_limit": options.memory_limit, "network": options.network}
+            spec_path = Path(tmp) / "spec.json"
+            spec_path.write_text(json.dumps(spec), encoding="utf-8")
+            started = time.perf_counter()
+            timed_out = False
+            with open(out / "stdout.txt", "wb") as so, open(out / "stderr.txt", "wb") as se:
+                proc = subprocess.Popen([self.python, "-m", "figproof.child", str(spec_path)], cwd=str(cwd),
+                                        stdin=subprocess.DEVNULL, stdout=so, stderr=se, env=child_env(mplconfig),
+                                        start_new_session=True)
+                try:
+                    proc.wait(timeout=options.timeout)
+                except subprocess.TimeoutExpired:
+                    timed_out = True
+                kill_group(proc)
+            seconds = time.perf_counter() - started
+            run = _collect(task, out, proc.returncode, timed_out, seconds, options.timeout)
+            _keep_outputs(run, sandbox, out / "regenerated")
+        return run
+
+
+def _collect(task: Task, out: Path, returncode: int | None, timed_out: bool, seconds: float,
+             timeout: float) -> ScriptRun:
+    stdout, stderr = _tail(out / "stdout.txt"), _tail(out / "stderr.txt")
+    base: ScriptRun | None = None
+    if (out / "run.json").exists() and not timed_out:
+        try:
+            base = load_run(out)
+        except (ValueError, OSError, KeyError, TypeError) as exc:
+            base = ScriptRun(path=task.script, status="failed", notes=(f"unreadable run record: {exc}",),
+                             error=ScriptError(kind="no-report", message="the run record was unreadable"))
+    if base is None:
+        base = ScriptRun(path=task.script, status="failed", events=_events(out / "events.jsonl"),
+                         error=_lost_error(returncode, timed_out, timeout, stderr))
+        if timed_out:
+            base = replace(base, status="timeout")
+        elif base.error is not None and base.error.kind == "memory":
+            base = replace(base, status="memory")
+    return replace(base, seconds=round(seconds, 3), working_dir=task.working_dir, stdout_tail=stdout,
+                   stderr_tail=stderr)
+
+
+def _lost_error(returncode: int | None, timed_out: bool, timeout: float, stderr: str) -> ScriptError:
+    if timed_out:
+        return ScriptError(kind="timeout", message=f"stopped after {timeout:g} s")
+    if returncode is not None and returncode < 0:
+        name = _SIGNAL_NAMES.get(-returncode, f"signal {-returncode}")
+        kind = "memory" if "MemoryError" in stderr else "signal"
+        return ScriptError(kind=kind, type=name, message=f"killed by {name}")
+    if "MemoryError" in stderr:
+        return ScriptError(kind="memory", type="MemoryError", message="ran out of memory")
+    last = next((ln for ln in reversed(stderr.strip().splitlines()) if ln.strip()), "")
+    return ScriptError(kind="no-report", message=f"exit status {returncode}" + (f"; {last[:200]}" if last else ""))
+
+
+def _keep_outputs(run: ScriptRun, sandbox: Path, dest: Path) -> None:
+    """Copy regenerated figure files out of the sandbox before it is deleted."""
+    for ev in run.events:
+        if ev.action != "save" or not ev.inside_repo:
+            continue
+        src = sandbox / ev.path
+        if src.is_file():
+            target = dest / ev.path
+            target.parent.mkdir(parents=True, exist_ok=True)
+            shutil.copy2(src, target)
+
+
+def _slug(script: str) -> str:
+    return script.replace("/", "__")
+
+
+def artifact_dir(options: Options, script: str) -> Path:
+    """Folder holding one script's run record, renders and regenerated files."""
+    return options.artifacts / _slug(script)
+
+
+def execute_all(tasks: Iterable[Task], options: Options, runner: Runner | None = None,
+                progress: Callable[[ScriptRun, int, int], None] | None = None) -> list[ScriptRun]:
+    """Run every task (``options.jobs`` at a time); results in task order; one failure never stops the rest."""
+    runner = runner or FreshInterpreter()
+    tasks = list(tasks)
+    results: list[ScriptRun | None] = [None] * len(tasks)
+    done = 0
+
+    def one(i: int) -> None:
+        nonlocal done
+        task = tasks[i]
+        try:
+            run = runner.run(task, options)
+        except Exception as exc:  # noqa: BLE001 - a broken sandbox for one script must not stop the others
+            run = ScriptRun(path=task.script, status="failed", working_dir=task.working_dir,
+                            error=ScriptError(kind="no-report", type=type(exc).__name__, message=str(exc)[:300]))
+        results[i] = run
+        done += 1
+        if progress is not None:
+            progress(run, done, len(tasks))
+
+    with ThreadPoolExecutor(max_workers=max(1, options.jobs)) as pool:
+        list(pool.map(one, range(len(tasks))))
+    return [r for r in results if r is not None]
