@@ -1,0 +1,64 @@
+"""The few git facts figproof needs, read through the ``git`` command line.
+
+Every helper answers ``None`` when git is missing, the folder is not inside a
+work tree, or git refuses (e.g. "dubious ownership" in a container): callers
+then treat the folder as a plain directory.
+"""
+
+from __future__ import annotations
+
+import os
+import subprocess
+from pathlib import Path
+
+# git on a huge repo can be slow, but a hung git must not hang a check.
+_GIT_TIMEOUT = 120.0
+
+
+def _git(cwd: Path, *args: str) -> bytes | None:
+    try:
+        done = subprocess.run(
+            ["git", "-C", str(cwd), *args],
+            stdin=subprocess.DEVNULL,
+            capture_output=True,
+            timeout=_GIT_TIMEOUT,
+            check=False,
+        )
+    except (OSError, subprocess.SubprocessError):
+        return None
+    return done.stdout if done.returncode == 0 else None
+
+
+def toplevel(path: Path) -> Path | None:
+    """The top folder of the git work tree holding ``path``, or None.
+
+    Parameters
+    ----------
+    path
+        A file or folder; a file is looked up from its parent folder.
+    """
+    folder = path if path.is_dir() else path.parent
+    out = _git(folder, "rev-parse", "--show-toplevel")
+    if out is None:
+        return None
+    text = os.fsdecode(out).strip()
+    return Path(text).resolve() if text else None
+
+
+def tracked_files(root: Path) -> list[str] | None:
+    """Files git tracks under ``root``, relative to it (POSIX), or None when not a git work tree.
+
+    Index entries whose file is missing from the working tree, and submodules
+    (which are folders), are left out: only files that a check can read count.
+    """
+    if toplevel(root) is None:
+        return None
+    # -z: NUL-separated and never quoted, so any file name survives.
+    out = _git(root, "ls-files", "-z", "--cached")
+    if out is None:
+        return None
+    names = [os.fsdecode(raw) for raw in out.split(b"\0") if raw]
+    return sorted({n for n in names if (root / n).is_file()})
+
+
+__all__ = ["toplevel", "tracked_files"]
