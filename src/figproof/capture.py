@@ -64,7 +64,8 @@ class Recorder:
     samples: list[tuple[np.ndarray, str, Source | None]] = field(default_factory=list)
     boxplots: list[tuple[Any, list[dict[str, Any]], dict[str, Any], bool, Source | None]] = field(default_factory=list)
     violins: list[tuple[Any, list[dict[str, Any]], dict[str, Any], bool, Source | None]] = field(default_factory=list)
-    tables: list[tuple[str, str, dict[str, np.ndarray], bool, Source | None]] = field(default_factory=list)
+    tables: list[tuple[str, str, dict[str, np.ndarray], dict[str, np.ndarray], bool, Source | None]] = field(
+        default_factory=list)
     events: list[FileEvent] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
     _skip_dirs: tuple[str, ...] = ()
@@ -264,8 +265,13 @@ class _PostImportFinder(importlib.abc.MetaPathFinder):
         return spec
 
 
-def _numeric_columns(obj: Any) -> tuple[dict[str, np.ndarray], bool]:
+MAX_GROUPS = 50
+
+
+def _numeric_columns(obj: Any) -> tuple[dict[str, np.ndarray], dict[str, np.ndarray], bool]:
+    """Numeric columns, and low-cardinality text columns as integer codes, of a loaded table."""
     cols: dict[str, np.ndarray] = {}
+    groups: dict[str, np.ndarray] = {}
     truncated = False
     try:
         import pandas as pd
@@ -279,7 +285,10 @@ def _numeric_columns(obj: Any) -> tuple[dict[str, np.ndarray], bool]:
                     values = series.to_numpy(dtype=float, na_value=np.nan)
                     truncated |= values.size > MAX_RECORDED_VALUES
                     cols[str(name)] = values[:MAX_RECORDED_VALUES]
-            return cols, truncated
+                elif series.nunique(dropna=True) <= MAX_GROUPS:
+                    codes, _ = pd.factorize(series)
+                    groups[str(name)] = codes[:MAX_RECORDED_VALUES].astype(np.int64)
+            return cols, groups, truncated
     except ImportError:
         pass
     arr = np.asarray(obj) if isinstance(obj, np.ndarray) else None
@@ -289,7 +298,7 @@ def _numeric_columns(obj: Any) -> tuple[dict[str, np.ndarray], bool]:
             values = arr2[:, j].astype(float)
             truncated |= values.size > MAX_RECORDED_VALUES
             cols[str(j)] = values[:MAX_RECORDED_VALUES]
-    return cols, truncated
+    return cols, groups, truncated
 
 
 def _wrap_loader(rec: Recorder, module: Any, name: str) -> None:
@@ -304,12 +313,13 @@ def _wrap_loader(rec: Recorder, module: Any, name: str) -> None:
         info = rec.classify(target)
         if info is not None:
             try:
-                cols, truncated = _numeric_columns(result)
+                cols, groups, truncated = _numeric_columns(result)
             except Exception:  # noqa: BLE001 - recording must never break the user's script
-                cols, truncated = {}, False
+                cols, groups, truncated = {}, {}, False
             if cols:
                 src, _ = rec.user_source(2)
-                rec.tables.append((info[0], f"{module.__name__.split('.')[0]}.{name}", cols, truncated, src))
+                rec.tables.append((info[0], f"{module.__name__.split('.')[0]}.{name}", cols, groups, truncated,
+                                   src))
         return result
 
     loader._figproof = True  # type: ignore[attr-defined]

@@ -111,6 +111,7 @@ class _AxesExtractor:
 
     def __init__(self, ax: MplAxes, index: int, rec: Recorder, renderer: Any, used: set[int] | None = None) -> None:
         self.used = used if used is not None else set()
+        self.order = {id(a): i for i, a in enumerate(ax.get_children())}
         self.ax = ax
         self.index = index
         self.rec = rec
@@ -180,7 +181,8 @@ class _AxesExtractor:
         hist = getattr(c, "_figproof_hist", False) or all(getattr(p, "_figproof_hist", False) for p in rects)
         lib = _lib(rects[0])
         origin = "hist" if hist else (lib or "bar")
-        self.bars.append(_barset(rects, vertical, origin, c.get_label() or "", self.renderer))
+        self.bars.append(_barset(rects, vertical, origin, c.get_label() or "", self.renderer,
+                                 self.order.get(id(rects[0]))))
 
     def errorbar_container(self, c: ErrorbarContainer) -> None:
         data_line, caplines, barcols = c.lines
@@ -191,7 +193,7 @@ class _AxesExtractor:
         if data_line is not None:
             centers_xy = np.asarray(data_line.get_xydata(), float)
             if data_line.get_marker() not in NO_MARKERS and self.attached(data_line):
-                self.points.append(_line_points(self.ax, data_line))
+                self.points.append(_line_points(self.ax, data_line, self.order.get(id(data_line))))
             if data_line.get_linestyle() not in ("None", "", " ") and self.attached(data_line):
                 self.lines.append(_line(self.ax, data_line, "data"))
         for col in barcols:
@@ -230,7 +232,7 @@ class _AxesExtractor:
             if has_line or role == "reference":
                 self.lines.append(_line(self.ax, ln, role))
             if ln.get_marker() not in NO_MARKERS and role == "data":
-                self.points.append(_line_points(self.ax, ln))
+                self.points.append(_line_points(self.ax, ln, self.order.get(id(ln))))
         if seg_bars:
             for vertical in (True, False):
                 group = [s for s in seg_bars if s[3] == vertical]
@@ -261,7 +263,8 @@ class _AxesExtractor:
                     kind="fill", display_box=_box(coll.get_window_extent(self.renderer)),
                     facecolor=_rgba(fc[0]) if len(fc) else (0.0, 0.0, 0.0, 0.0),
                     edgecolor=_rgba(coll.get_edgecolor()[0]) if len(coll.get_edgecolor()) else (0.0, 0.0, 0.0, 0.0),
-                    zorder=float(coll.get_zorder()), label=_label(coll), source=_src(coll)))
+                    zorder=float(coll.get_zorder()), label=_label(coll), source=_src(coll),
+                    draw_order=self.order.get(id(coll))))
 
     def scatter(self, coll: PathCollection) -> None:
         offsets = np.ma.filled(np.ma.asarray(coll.get_offsets(), float), np.nan).reshape(-1, 2)
@@ -277,7 +280,7 @@ class _AxesExtractor:
             kind="scatter", x=data[:, 0], y=data[:, 1], px=display[:, 0], py=display[:, 1],
             sizes=sizes if sizes.size else np.array([36.0]), facecolors=_rgba_array(coll.get_facecolor()),
             edgecolors=_rgba_array(coll.get_edgecolor()), alpha=coll.get_alpha(), zorder=float(coll.get_zorder()),
-            label=_label(coll), colormap=cmap_index, source=_src(coll)))
+            label=_label(coll), colormap=cmap_index, source=_src(coll), draw_order=self.order.get(id(coll))))
 
     def images(self) -> None:
         for im in self.ax.images:
@@ -298,16 +301,16 @@ class _AxesExtractor:
             if isinstance(p, Rectangle) and p.get_width() != 0 and p.get_height() != 0:
                 rows.append(p)
                 continue
-            self.patches.append(_patch(p, "polygon", self.renderer))
+            self.patches.append(_patch(p, "polygon", self.renderer, self.order.get(id(p))))
         # rectangles drawn one by one in a row on a shared baseline are bars too
         by_base: dict[tuple[float, float], list[Rectangle]] = {}
         for r in rows:
             by_base.setdefault((round(r.get_y(), 12), round(abs(r.get_width()), 12)), []).append(r)
         for group in by_base.values():
             if len(group) >= 2 and all(r.get_transform() == self.ax.transData for r in group):
-                self.bars.append(_barset(group, True, "rectangles", "", self.renderer))
+                self.bars.append(_barset(group, True, "rectangles", "", self.renderer, self.order.get(id(group[0]))))
             else:
-                self.patches.extend(_patch(r, "rectangle", self.renderer) for r in group)
+                self.patches.extend(_patch(r, "rectangle", self.renderer, self.order.get(id(r))) for r in group)
 
     def text_marks(self) -> None:
         ax = self.ax
@@ -402,7 +405,8 @@ def _handle_color(handle: Any) -> RGBA | None:
         return None
 
 
-def _barset(rects: list[Rectangle], vertical: bool, origin: str, label: str, renderer: Any) -> BarSet:
+def _barset(rects: list[Rectangle], vertical: bool, origin: str, label: str, renderer: Any,
+            draw_order: int | None = None) -> BarSet:
     xs = np.array([r.get_x() for r in rects], float)
     ys = np.array([r.get_y() for r in rects], float)
     ws = np.array([r.get_width() for r in rects], float)
@@ -416,12 +420,13 @@ def _barset(rects: list[Rectangle], vertical: bool, origin: str, label: str, ren
                   bottoms=bottoms, heights=heights, facecolors=_rgba_array([r.get_facecolor() for r in rects]),
                   edgecolors=_rgba_array([r.get_edgecolor() for r in rects]), display_boxes=boxes, origin=origin,
                   label=label if not label.startswith("_") else "", zorder=float(rects[0].get_zorder()),
-                  source=_src(rects[0]))
+                  source=_src(rects[0]), draw_order=draw_order)
 
 
-def _patch(p: Any, kind: str, renderer: Any) -> Patch:
+def _patch(p: Any, kind: str, renderer: Any, draw_order: int | None = None) -> Patch:
     return Patch(kind=kind, display_box=_box(p.get_window_extent(renderer)), facecolor=_rgba(p.get_facecolor()),
-                 edgecolor=_rgba(p.get_edgecolor()), zorder=float(p.get_zorder()), label=_label(p), source=_src(p))
+                 edgecolor=_rgba(p.get_edgecolor()), zorder=float(p.get_zorder()), label=_label(p), source=_src(p),
+                 draw_order=draw_order)
 
 
 def _line(ax: MplAxes, ln: Line2D, role: str) -> Line:
@@ -435,7 +440,7 @@ def _line(ax: MplAxes, ln: Line2D, role: str) -> Line:
                 zorder=float(ln.get_zorder()), label=_label(ln), role=role, source=_src(ln))
 
 
-def _line_points(ax: MplAxes, ln: Line2D) -> PointSet:
+def _line_points(ax: MplAxes, ln: Line2D, draw_order: int | None = None) -> PointSet:
     xy = np.ma.filled(np.ma.asarray(ln.get_xydata(), float), np.nan).reshape(-1, 2)
     display = ln.get_transform().transform(xy) if xy.size else np.zeros((0, 2))
     data = _data_coords(ax, ln.get_transform(), xy)
@@ -445,7 +450,8 @@ def _line_points(ax: MplAxes, ln: Line2D) -> PointSet:
                     sizes=np.array([float(ln.get_markersize()) ** 2]),
                     facecolors=_rgba_array([face], alpha) if face not in ("none", "None") else np.zeros((1, 4)),
                     edgecolors=_rgba_array([ln.get_markeredgecolor()], alpha), alpha=alpha,
-                    marker=str(ln.get_marker()), zorder=float(ln.get_zorder()), label=_label(ln), source=_src(ln))
+                    marker=str(ln.get_marker()), zorder=float(ln.get_zorder()), label=_label(ln), source=_src(ln),
+                    draw_order=draw_order)
 
 
 def _errorbar_segment(ln: Line2D) -> tuple[float, float, float, bool] | None:
@@ -501,7 +507,8 @@ def extract_figure(fig: Figure, number: int, rec: Recorder, render_path: Path | 
     index_of = {id(ax): i for i, ax in enumerate(axes_list)}
     calls = tuple(PlotCall(name=name, axes=index_of[id(ax)], arrays=arrays, source=src)
                   for ax, name, arrays, src in rec.calls if id(ax) in index_of)
-    tables = tuple(LoadedTable(path=p, reader=r, columns=c, truncated=t, source=s) for p, r, c, t, s in rec.tables)
+    tables = tuple(LoadedTable(path=p, reader=r, columns=c, groups=g, truncated=t, source=s)
+                   for p, r, c, g, t, s in rec.tables)
     fig_texts = []
     extractor = _AxesExtractor(axes_list[0], 0, rec, renderer) if axes_list else None
     if extractor is not None:

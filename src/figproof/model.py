@@ -400,6 +400,7 @@ class LoadedTable(Serialisable):
     columns: dict[str, Array] = field(default_factory=dict)
     truncated: bool = False
     source: Source | None = None
+    groups: dict[str, Array] = field(default_factory=dict)  # text/category columns as integer codes (-1 = missing)
 
 
 @model
