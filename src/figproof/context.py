@@ -2,9 +2,25 @@
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
+from pathlib import PurePosixPath
+from types import MappingProxyType
 
+from figproof.compare import OutputComparison
 from figproof.model import ScriptRun
+
+
+def _empty_mapping() -> Mapping:
+    return MappingProxyType({})
+
+
+def is_repo_path(path: str) -> bool:
+    """True for a repo-relative POSIX path (not absolute, no ``..``, not a URL)."""
+    if not path or "://" in path or (len(path) > 1 and path[1] == ":"):
+        return False
+    pure = PurePosixPath(path)
+    return not pure.is_absolute() and ".." not in pure.parts
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -20,7 +36,52 @@ class Inventory:
 
 @dataclass(frozen=True, slots=True, kw_only=True)
 class RunContext:
-    """Read-only facts shared by all run-scope rules of one check."""
+    """Read-only facts shared by all run-scope rules of one check.
+
+    ``runs`` are in execution order (the order the config states, else config
+    order): rules use it to tell a read of a file an earlier script wrote (fine)
+    from a read of a file a later script writes (reported).
+
+    ``comparisons``: committed figure file vs regenerated file, keyed by the
+    repo-relative output path (only paths that exist in the user's repo).
+    ``notebook_comparisons``: a notebook's stored ``image/png`` outputs vs the
+    re-executed cell's figures, keyed by notebook path.
+    ``second_runs`` / ``rerun_comparisons``: with ``--twice``, the second run of
+    each script and the comparison of each output of the first run with the same
+    output of the second run (first run as "committed"), keyed by script path.
+    ``running_version``: the matplotlib version the children ran with.
+    """
 
     inventory: Inventory = field(default_factory=Inventory)
     runs: tuple[ScriptRun, ...] = ()
+    comparisons: Mapping[str, OutputComparison] = field(default_factory=_empty_mapping)
+    notebook_comparisons: Mapping[str, tuple[OutputComparison, ...]] = field(default_factory=_empty_mapping)
+    second_runs: Mapping[str, ScriptRun] = field(default_factory=_empty_mapping)
+    rerun_comparisons: Mapping[str, tuple[OutputComparison, ...]] = field(default_factory=_empty_mapping)
+    running_version: str = ""
+
+    def nondeterministic(self) -> dict[str, tuple[str, ...]]:
+        """Output paths that differed between the two runs, by script path (empty without ``--twice``)."""
+        return {
+            script: tuple(sorted(c.path for c in found if c.status != "same"))
+            for script, found in sorted(self.rerun_comparisons.items())
+            if any(c.status != "same" for c in found)
+        }
+
+    def written_by(self) -> dict[str, tuple[str, ...]]:
+        """Repo-relative files each run saved or wrote, keyed by file, scripts in execution order."""
+        out: dict[str, list[str]] = {}
+        for run in self.runs:
+            for ev in run.events:
+                if ev.action in ("save", "write") and ev.inside_repo:
+                    scripts = out.setdefault(ev.path, [])
+                    if run.path not in scripts:
+                        scripts.append(run.path)
+            for fig in run.figures:
+                for path in fig.outputs:
+                    if not is_repo_path(path):
+                        continue
+                    scripts = out.setdefault(path, [])
+                    if run.path not in scripts:
+                        scripts.append(run.path)
+        return {k: tuple(v) for k, v in sorted(out.items())}
