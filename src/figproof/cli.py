@@ -1,0 +1,177 @@
+"""Command line: ``figproof check | demo | rules | explain``.
+
+``main(argv) -> int`` is testable in process; nothing below this module calls
+``sys.exit``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import enum
+import shutil
+import sys
+import tempfile
+import textwrap
+import traceback
+from collections.abc import Sequence
+from pathlib import Path
+
+from figproof import __version__
+
+
+class ExitCode(enum.IntEnum):
+    """figproof's documented exit codes."""
+
+    PASSED = 0
+    FAILED = 1  # a finding crossed the fail-on threshold
+    USAGE = 2  # bad command line, config or path
+    INTERNAL = 3  # a bug in figproof: please report it with the traceback
+
+
+class UsageError(Exception):
+    """A mistake in how figproof was called; the message is one line."""
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser (also read by tests that check the CI examples use real flags)."""
+    parser = argparse.ArgumentParser(
+        prog="figproof",
+        description="Re-run a repo's figure scripts headlessly and check what they drew.",
+    )
+    parser.add_argument("--version", action="version", version=f"figproof {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+
+    check = sub.add_parser("check", help="check a repo (default: the current folder)")
+    check.add_argument("path", nargs="?", default=".", help="repo folder to check")
+    _report_flags(check)
+    check.add_argument("--jobs", type=int, metavar="N", help="scripts run at once (default: config, else CPUs)")
+
+    demo = sub.add_parser("demo", help="copy the bundled demo lab repo to a temporary folder and check it")
+    demo.add_argument("--keep", metavar="DIR", help="copy the demo repo to DIR instead of a temporary folder")
+
+    sub.add_parser("rules", help="list the rules")
+    explain = sub.add_parser("explain", help="why a rule matters, how to fix it, its sources")
+    explain.add_argument("rule", help="rule id, e.g. bars-for-continuous")
+    return parser
+
+
+def _report_flags(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--json", metavar="FILE", help="write the JSON report (schema 1)")
+    p.add_argument("--markdown", metavar="FILE", help="write the markdown summary")
+    p.add_argument("--images", metavar="DIR", help="write figure images for findings (simulated views, diffs)")
+    p.add_argument("--timings", action="store_true", help="add run times to the reports (they then vary)")
+    p.add_argument("--quiet", action="store_true", help="print nothing but errors")
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run figproof; return the exit code."""
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # argparse exits on --help and on errors
+        return ExitCode.PASSED if exc.code == 0 else ExitCode.USAGE
+    if args.command is None:
+        parser.print_help()
+        return ExitCode.USAGE
+    try:
+        return {"check": cmd_check, "demo": cmd_demo, "rules": cmd_rules, "explain": cmd_explain}[args.command](args)
+    except UsageError as exc:
+        print(f"figproof: {exc}", file=sys.stderr)
+        return ExitCode.USAGE
+    except KeyboardInterrupt:
+        print("figproof: interrupted", file=sys.stderr)
+        return ExitCode.INTERNAL
+    except Exception:  # noqa: BLE001 - the one place that turns a figproof bug into exit code 3
+        traceback.print_exc()
+        print("figproof: internal error (a bug in figproof); please report it with the traceback above",
+              file=sys.stderr)
+        return ExitCode.INTERNAL
+
+
+def cmd_rules(args: argparse.Namespace) -> int:
+    from figproof.rules import RULES
+
+    width = max(len(r.id) for r in RULES)
+    for r in RULES:
+        print(f"{r.id:<{width}}  {r.severity:<7}  {r.summary}")
+    return ExitCode.PASSED
+
+
+def explain_text(rule_id: str) -> str:
+    """The text ``figproof explain RULE`` prints."""
+    from figproof.rules import by_id
+
+    catalogue = by_id()
+    if rule_id not in catalogue:
+        raise UsageError(f"unknown rule {rule_id!r}; `figproof rules` lists them")
+    r = catalogue[rule_id]
+    out = [f"{r.id}: {r.summary}", "", f"Default severity: {r.severity}. Scope: {r.scope}.", "",
+           "Why it matters", textwrap.fill(r.why, 88), "", "How to fix it", textwrap.fill(r.fix, 88), ""]
+    if r.knobs:
+        out.append(f"Settings ([tool.figproof.rules.{r.id}])")
+        out += [f"  {k.name.replace('_', '-')} = {k.default:g}   {k.help}" for k in r.knobs]
+        out.append("")
+    out.append("Sources")
+    out += [textwrap.fill(s, 88, initial_indent="  - ", subsequent_indent="    ") for s in r.sources]
+    return "\n".join(out) + "\n"
+
+
+def cmd_explain(args: argparse.Namespace) -> int:
+    print(explain_text(args.rule), end="")
+    return ExitCode.PASSED
+
+
+def run_check(path: Path, args: argparse.Namespace, *, shown_root: str | None = None) -> int:
+    """Check ``path`` and write the reports asked for in ``args``."""
+    from figproof.config import ConfigError
+    from figproof.discover import DiscoveryError
+    from figproof.pipeline import CheckOptions, check
+    from figproof.outputs import write_reports
+
+    if not path.exists():
+        raise UsageError(f"{path}: no such file or folder")
+    skip = tuple(_inside(path, Path(p)) for p in (args.images, args.json, args.markdown) if p)
+    options = CheckOptions(jobs=getattr(args, "jobs", None), skip_copy=tuple(s for s in skip if s))
+    try:
+        checked = check(path, options)
+    except (ConfigError, DiscoveryError) as exc:
+        raise UsageError(str(exc)) from None
+    try:
+        text = write_reports(checked, args, shown_root=shown_root)
+    finally:
+        shutil.rmtree(checked.artifacts, ignore_errors=True)
+    if not args.quiet:
+        print(text)
+    return ExitCode.PASSED if checked.result.summary.passed else ExitCode.FAILED
+
+
+def _inside(root: Path, p: Path) -> str | None:
+    try:
+        return p.resolve().relative_to(root.resolve()).parts[0]
+    except (ValueError, IndexError):
+        return None
+
+
+def cmd_check(args: argparse.Namespace) -> int:
+    return run_check(Path(args.path), args)
+
+
+def cmd_demo(args: argparse.Namespace) -> int:
+    from figproof.demo import copy_demo
+
+    base = Path(args.keep) if args.keep else Path(tempfile.mkdtemp(prefix="figproof-demo-"))
+    repo = copy_demo(base)
+    reports = base / "figproof-report"
+    args.json = str(reports / "figproof.json")
+    args.markdown = str(reports / "summary.md")
+    args.images = str(reports / "images")
+    args.quiet = False
+    args.timings = False
+    code = run_check(repo, args, shown_root="demo-lab")
+    print(f"The demo lab repo is in {repo}; it is meant to fail (exit code {int(code)}).")
+    print(f"Reports: {reports}/summary.md, {reports}/figproof.json, images in {reports}/images")
+    return ExitCode.PASSED
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

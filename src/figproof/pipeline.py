@@ -1,0 +1,86 @@
+"""One check, end to end: config → discover → execute → rules → policy → result.
+
+The reporters in :mod:`figproof.report` render the :class:`CheckResult`;
+:mod:`figproof.cli` decides where the output goes.
+"""
+
+from __future__ import annotations
+
+import tempfile
+from collections.abc import Callable
+from dataclasses import dataclass
+from pathlib import Path
+
+from figproof import __version__, rules
+from figproof.config import Config, load_config
+from figproof.context import Inventory, RunContext
+from figproof.discover import choose_working_dir, discover
+from figproof.execute import Options, Runner, Task, execute_all
+from figproof.findings import CheckResult
+from figproof.model import ScriptRun
+from figproof.policy import summarise
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class CheckOptions:
+    """Per-invocation choices that are not repo config."""
+
+    artifacts: Path | None = None  # where run records go (a temporary folder when None)
+    jobs: int | None = None
+    scripts: tuple[str, ...] | None = None  # restrict to these repo-relative scripts
+    skip_copy: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class Checked:
+    """A finished check: the result, the config and inventory it used, and where its artifacts are."""
+
+    result: CheckResult
+    config: Config
+    inventory: Inventory
+    context: RunContext
+    artifacts: Path
+
+
+def plan(config: Config, inventory: Inventory, only: tuple[str, ...] | None = None) -> list[Task]:
+    """Tasks in execution order, each with its working-directory mode resolved."""
+    scripts = [s for s in inventory.scripts if only is None or s in only]
+    return [Task(script=s, working_dir=choose_working_dir(config.root, s, config.working_dir)) for s in scripts]
+
+
+def check(path: Path, options: CheckOptions | None = None, *, runner: Runner | None = None,
+          progress: Callable[[ScriptRun, int, int], None] | None = None) -> Checked:
+    """Check the repo at ``path``.
+
+    Raises
+    ------
+    figproof.config.ConfigError, figproof.discover.DiscoveryError
+        For configuration and discovery problems (the CLI turns them into exit code 2).
+    """
+    options = options or CheckOptions()
+    config = load_config(path)
+    inventory = discover(config)
+    artifacts = options.artifacts or Path(tempfile.mkdtemp(prefix="figproof-run-"))
+    tasks = plan(config, inventory, options.scripts)
+    exec_options = Options(root=config.root, artifacts=artifacts, timeout=config.timeout,
+                           memory_limit=config.memory_limit, network=config.network,
+                           jobs=options.jobs or config.jobs, skip_copy=options.skip_copy)
+    runs = tuple(execute_all(tasks, exec_options, runner=runner, progress=progress))
+    context = RunContext(inventory=inventory, runs=runs)
+    findings = rules.apply(runs, context, config.rules)
+    notes: list[str] = []
+    if not inventory.scripts:
+        notes.append("no figure scripts found (no .py or .ipynb file imports matplotlib, seaborn or pandas plotting)")
+    summary = summarise(runs, findings, config.fail_on)
+    result = CheckResult(root=_shown_root(config.root, path), version=__version__, runs=runs,
+                         findings=tuple(findings), summary=summary, fail_on=config.fail_on, notes=tuple(notes))
+    return Checked(result=result, config=config, inventory=inventory, context=context, artifacts=artifacts)
+
+
+def _shown_root(root: Path, asked: Path) -> str:
+    """The checked root as the user named it (never an absolute path of this machine in reports)."""
+    try:
+        rel = root.resolve().relative_to(Path.cwd().resolve())
+        return rel.as_posix() or "."
+    except ValueError:
+        return root.name or "."

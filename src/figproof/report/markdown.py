@@ -1,0 +1,115 @@
+"""The markdown summary: what a scientist reads in the CI log or the job summary page."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+
+from figproof.findings import CheckResult, Finding
+from figproof.model import ScriptRun
+
+STEP_SUMMARY_LIMIT = 1024 * 1024  # GitHub rejects job summaries over 1 MiB
+_ISOLATION = {"repo-copy": "ran on a copy of the repo", "memory-cap": "memory cap", "network-off": "network off"}
+
+
+def _cell(text: str) -> str:
+    return text.replace("\\", "\\\\").replace("|", "\\|").replace("\n", " ")
+
+
+def where(f: Finding) -> str:
+    cell = f" cell {f.cell}" if f.cell is not None else ""
+    line = f":{f.line}" if f.line else ""
+    return f"{f.path}{cell}{line}"
+
+
+def _headline(result: CheckResult) -> str:
+    s = result.summary
+    counts = f"{s.errors} error{'s' * (s.errors != 1)}, {s.warnings} warning{'s' * (s.warnings != 1)}, " \
+             f"{s.notes} note{'s' * (s.notes != 1)}"
+    scope = f"{s.figures} figure{'s' * (s.figures != 1)} from {s.scripts} script{'s' * (s.scripts != 1)}"
+    verdict = "PASSED" if s.passed else "FAILED"
+    return f"## figproof {verdict}: {counts} in {scope}"
+
+
+def _threshold(result: CheckResult) -> str:
+    if result.fail_on == "never":
+        return "the build never fails (fail-on = never)"
+    levels = {"error": "errors", "warning": "warnings or errors", "note": "any finding"}
+    return f"the build fails on {levels[result.fail_on]}"
+
+
+def _isolation(runs: tuple[ScriptRun, ...]) -> str:
+    seen = [tag for tag in _ISOLATION if runs and all(tag in r.isolation for r in runs if r.isolation)]
+    return ", ".join(_ISOLATION[t] for t in seen) or "none recorded"
+
+
+def _findings_table(findings: list[Finding], images: Mapping[str, str]) -> list[str]:
+    rows = ["| where | rule | severity | what figproof found |", "|---|---|---|---|"]
+    for f in findings:
+        msg = _cell(f.message)
+        if f.figure and f.figure in images and f.rule.startswith(("colo", "low-contrast")):
+            msg += f" ([simulated views]({images[f.figure]}))"
+        if f.rule == "figure-drift" and f.path in images:
+            msg += f" ([difference]({images[f.path]}))"
+        rows.append(f"| `{_cell(where(f))}` | {f.rule} | {f.severity} ({f.confidence}) | {msg} |")
+    return rows
+
+
+def _scripts_table(runs: tuple[ScriptRun, ...], timings: bool) -> list[str]:
+    head = "| script | status | figures | ran from |" + (" seconds |" if timings else "")
+    rows = [head, "|---|---|---|---|" + ("---|" if timings else "")]
+    for r in runs:
+        status = r.status
+        if r.error is not None and r.error.type:
+            status += f": {r.error.type}"
+        ran_from = "repo root" if r.working_dir == "root" else "its own folder"
+        row = f"| `{_cell(r.path)}` | {_cell(status)} | {len(r.figures)} | {ran_from} |"
+        if timings:
+            row += f" {r.seconds:.1f} |"
+        rows.append(row)
+    return rows
+
+
+def render(result: CheckResult, *, images: Mapping[str, str] | None = None, timings: bool = False,
+           rule_summaries: Mapping[str, str] | None = None) -> str:
+    """Render the summary; ``images`` maps figure ids / output paths to relative image links."""
+    images = images or {}
+    lines = [_headline(result), ""]
+    lines.append(f"figproof {result.version} re-ran the figure scripts of `{result.root}`; {_threshold(result)}. "
+                 f"Isolation: {_isolation(result.runs)}.")
+    lines.append("")
+    open_ = [f for f in result.findings if f.accepted is None]
+    accepted = [f for f in result.findings if f.accepted is not None]
+    if open_:
+        lines += ["### Findings", ""] + _findings_table(open_, images) + [""]
+    else:
+        lines += ["No open findings.", ""]
+    if accepted:
+        lines += [f"<details><summary>{len(accepted)} accepted finding(s)</summary>", ""]
+        lines += ["| where | rule | reason |", "|---|---|---|"]
+        lines += [f"| `{_cell(where(f))}` | {f.rule} | {_cell(f.accepted or '')} |" for f in accepted]
+        lines += ["", "</details>", ""]
+    if result.runs:
+        lines += ["### Scripts", ""] + _scripts_table(result.runs, timings) + [""]
+    notes = list(result.notes) + [f"`{r.path}`: {n}" for r in result.runs for n in r.notes]
+    if notes:
+        lines += ["### Notes", ""] + [f"- {_cell(n)}" for n in notes] + [""]
+    rules_seen = sorted({f.rule for f in open_})
+    if rules_seen:
+        lines += ["### What to do", ""]
+        for rid in rules_seen:
+            summary = (rule_summaries or {}).get(rid, "")
+            lines.append(f"- **{rid}**: {summary} Run `figproof explain {rid}` for why it matters and how to fix it.")
+        lines.append("")
+    return "\n".join(lines)
+
+
+def fit(text: str, limit: int = STEP_SUMMARY_LIMIT) -> str:
+    """Cut ``text`` to at most ``limit`` bytes at a line boundary, with a note saying so."""
+    data = text.encode("utf-8")
+    if len(data) <= limit:
+        return text
+    note = "\n\n*figproof: this summary was cut to fit the 1 MiB limit; the JSON report has every finding.*\n"
+    room = limit - len(note.encode("utf-8"))
+    cut = data[:room].decode("utf-8", "ignore")
+    cut = cut[: cut.rfind("\n")] if "\n" in cut else cut
+    return cut + note
