@@ -70,6 +70,9 @@ class RuleSettings(NamedTuple):
 
 
 def _cpu_count() -> int:
+    # CPUs this process may use (a CI container's quota), not the machine's total.
+    if hasattr(os, "sched_getaffinity"):
+        return len(os.sched_getaffinity(0)) or 1
     return os.cpu_count() or 1
 
 

@@ -1,0 +1,504 @@
+"""Find a repo's figure scripts, data files and committed figures.
+
+By default a figure script is a ``.py`` or ``.ipynb`` file whose code imports
+a plotting library (matplotlib, pylab, mpl_toolkits, seaborn, plotnine) or
+imports pandas and calls its plotting API (``.plot``, ``.hist``,
+``.boxplot``, ``pandas.plotting``).  Code is read, never run: scripts are
+parsed with :mod:`ast` and notebooks are read as JSON.  Test files, virtual
+environments, build folders and hidden folders are skipped.  When the repo is
+a git work tree only tracked files count, since the check runs on what is
+committed.  Explicit ``include`` globs replace the import test and the test
+skipping (the folders above are always skipped: they never hold a lab's
+figure scripts); ``exclude`` globs remove scripts either way.
+
+Glob syntax, on repo-relative POSIX paths: ``*`` and ``?`` stay within one
+path segment, ``**`` spans any number of segments, ``[abc]`` is a character
+class; a pattern without ``/`` matches a name at any depth; a pattern that
+matches a folder covers everything below it.
+"""
+
+from __future__ import annotations
+
+import ast
+import json
+import os
+import re
+from collections.abc import Iterable, Iterator
+from functools import lru_cache
+from pathlib import Path
+from typing import Any
+
+from figproof import gitrepo
+from figproof.config import Config
+from figproof.context import Inventory
+
+SCRIPT_SUFFIXES = (".py", ".ipynb")
+DATA_SUFFIXES = frozenset(
+    ".csv .tsv .txt .dat .tab .xlsx .xls .xlsm .ods .json .jsonl .ndjson .parquet .feather .arrow "
+    ".npy .npz .h5 .hdf5 .hdf .he5 .nc .mat .pkl .pickle .sav .dta .xpt .sas7bdat .fits .fit .zip".split()
+)
+FIGURE_SUFFIXES = frozenset(".png .svg .svgz .pdf .jpg .jpeg .tif .tiff .eps .ps .gif .webp".split())
+# A compressed data file (results.csv.gz) is read by pandas and numpy as the inner format.
+_COMPRESSION = frozenset(".gz .bz2 .xz .zst".split())
+
+PLOT_MODULES = frozenset({"matplotlib", "pylab", "mpl_toolkits", "seaborn", "plotnine"})
+# Attributes that, in code importing pandas, mean pandas' own plotting API (DataFrame.plot & co).
+PANDAS_PLOT_ATTRS = frozenset({"plot", "plotting", "hist", "boxplot", "scatter_matrix"})
+
+VENV_NAMES = frozenset({".venv", "venv", "env", ".env", "virtualenv"})
+BUILD_NAMES = frozenset({"build", "dist", "site-packages", "node_modules", "__pycache__", "__pypackages__"})
+TEST_DIRS = frozenset({"tests", "test"})
+# Figure files under these top folders are documentation or test fixtures, not the paper's figures.
+NON_FIGURE_DIRS = ("docs", "doc", "tests", "test")
+# Text files that are project metadata rather than data.
+_NOT_DATA = re.compile(r"^(requirements.*|constraints.*|license.*|licence.*|readme.*|changelog.*|cmakelists)\.txt$", re.I)
+
+_FALLBACK_IMPORT = re.compile(
+    r"^[ \t]*(?:import|from)[ \t]+(?:matplotlib|pylab|mpl_toolkits|seaborn|plotnine|pandas\.plotting)\b"
+    r"|^[ \t]*from[ \t]+pandas[ \t]+import[ \t]+[^\n]*\bplotting\b",
+    re.M,
+)
+_NAMES = tuple(n.encode() for n in (*sorted(PLOT_MODULES), "pandas"))
+_MAX_SOURCE_BYTES = 20 * 1024 * 1024  # bigger "scripts" are generated data, not figure code
+
+
+class DiscoveryError(Exception):
+    """Discovery cannot honour the config (an include pattern or order entry names nothing)."""
+
+
+# --------------------------------------------------------------------------- globs
+
+
+@lru_cache(maxsize=512)
+def _glob_regex(pattern: str) -> re.Pattern[str]:
+    pat = pattern.replace("\\", "/")
+    while pat.startswith("./"):
+        pat = pat[2:]
+    pat = pat.rstrip("/")
+    segments = pat.split("/")
+    out: list[str] = []
+    for i, seg in enumerate(segments):
+        last = i == len(segments) - 1
+        if seg == "**":
+            out.append(".*" if last else "(?:[^/]+/)*")
+            continue
+        out.append(_segment(seg) + ("" if last else "/"))
+    body = "".join(out)
+    if "/" not in pat:
+        body = "(?:.*/)?" + body  # a bare name matches at any depth
+    return re.compile(body)
+
+
+def _segment(seg: str) -> str:
+    out: list[str] = []
+    i = 0
+    while i < len(seg):
+        c = seg[i]
+        if c == "*":
+            out.append("[^/]*")
+        elif c == "?":
+            out.append("[^/]")
+        elif c == "[":
+            end = seg.find("]", i + 2 if seg[i + 1 : i + 2] in ("!", "^") else i + 1)
+            if end == -1:
+                out.append(re.escape(c))
+            else:
+                inner = seg[i + 1 : end]
+                if inner[:1] in ("!", "^"):
+                    inner = "^" + inner[1:]
+                out.append("[" + inner.replace("\\", "\\\\") + "]")
+                i = end
+        else:
+            out.append(re.escape(c))
+        i += 1
+    return "".join(out)
+
+
+def glob_match(path: str, pattern: str) -> bool:
+    """Whether a repo-relative POSIX ``path`` matches ``pattern`` (itself, or a folder above it)."""
+    rx = _glob_regex(pattern)
+    if rx.fullmatch(path):
+        return True
+    # A pattern naming a folder covers the files below it.
+    for i, c in enumerate(path):
+        if c == "/" and rx.fullmatch(path[:i]):
+            return True
+    return False
+
+
+def _any_match(path: str, patterns: Iterable[str]) -> bool:
+    return any(glob_match(path, p) for p in patterns)
+
+
+# --------------------------------------------------------------------------- listing files
+
+
+class _Skipper:
+    """Decides which folders never count: hidden, virtual environments, build output."""
+
+    def __init__(self, root: Path, names: Iterable[str] = ()) -> None:
+        self.root = root
+        # A tracked pyvenv.cfg marks its folder as an environment without a disk lookup.
+        self._venv_markers = {n.rpartition("/")[0] for n in names if n.rpartition("/")[2] == "pyvenv.cfg"}
+        self._cache: dict[str, bool] = {}
+
+    def folder(self, rel: str) -> bool:
+        """True when the repo-relative folder ``rel`` (not its parents) is to be skipped."""
+        hit = self._cache.get(rel)
+        if hit is None:
+            name = rel.rsplit("/", 1)[-1]
+            hit = (
+                name.startswith(".")
+                or name in VENV_NAMES
+                or name in BUILD_NAMES
+                or name.endswith(".egg-info")
+                or rel in self._venv_markers
+                or (self.root / rel / "pyvenv.cfg").is_file()
+                or (self.root / rel / "conda-meta").is_dir()
+            )
+            self._cache[rel] = hit
+        return hit
+
+    def path(self, rel: str) -> bool:
+        """True when any folder of the repo-relative file ``rel`` is skipped, or the file is hidden."""
+        parts = rel.split("/")
+        if parts[-1].startswith("."):
+            return True
+        return any(self.folder("/".join(parts[: i + 1])) for i in range(len(parts) - 1))
+
+
+def _walk(root: Path) -> list[str]:
+    skipper = _Skipper(root)
+    found: list[str] = []
+    for here, dirs, files in os.walk(root, onerror=None):
+        rel_here = Path(here).relative_to(root).as_posix()
+        prefix = "" if rel_here == "." else rel_here + "/"
+        dirs[:] = [d for d in dirs if not skipper.folder(prefix + d)]
+        found.extend(prefix + f for f in files if not f.startswith("."))
+    return sorted(found)
+
+
+def _is_test(rel: str) -> bool:
+    parts = rel.split("/")
+    name = parts[-1]
+    stem = name.rsplit(".", 1)[0]
+    return (
+        any(p in TEST_DIRS for p in parts[:-1])
+        or stem.startswith("test_")
+        or stem.endswith("_test")
+        or stem == "conftest"
+    )
+
+
+def _suffix(rel: str) -> str:
+    """The lower-case format suffix, looking through a compression suffix (``.csv.gz`` is ``.csv``)."""
+    name = rel.rsplit("/", 1)[-1].lower()
+    stem, dot, ext = name.rpartition(".")
+    if not dot or not stem:
+        return ""
+    if "." + ext in _COMPRESSION:
+        inner, dot, ext2 = stem.rpartition(".")
+        return "." + ext2 if dot and inner else ""
+    return "." + ext
+
+
+# --------------------------------------------------------------------------- reading code
+
+
+def _tree_draws(tree: ast.AST) -> bool:
+    uses_pandas = False
+    plot_attr = False
+    for node in ast.walk(tree):
+        if isinstance(node, ast.Import):
+            for alias in node.names:
+                top = alias.name.split(".")[0]
+                if top in PLOT_MODULES or alias.name.startswith("pandas.plotting"):
+                    return True
+                uses_pandas |= top == "pandas"
+        elif isinstance(node, ast.ImportFrom) and node.level == 0 and node.module:
+            top = node.module.split(".")[0]
+            if top in PLOT_MODULES or node.module.startswith("pandas.plotting"):
+                return True
+            if node.module == "pandas" and any(a.name == "plotting" for a in node.names):
+                return True
+            uses_pandas |= top == "pandas"
+        elif isinstance(node, ast.Attribute) and node.attr in PANDAS_PLOT_ATTRS:
+            plot_attr = True
+    return uses_pandas and plot_attr
+
+
+def _parse(code: str | bytes) -> ast.AST | None:
+    try:
+        return ast.parse(code)
+    except (SyntaxError, ValueError, RecursionError, MemoryError):
+        return None
+
+
+def code_draws(code: str | bytes) -> bool:
+    """Whether Python source imports a plotting library or uses pandas plotting.
+
+    Code that does not parse is scanned line by line for plotting imports, so a
+    figure script with a syntax error is still found (and its run reports the error).
+    """
+    raw = code.encode("utf-8", "surrogatepass") if isinstance(code, str) else code
+    if not any(name in raw for name in _NAMES):
+        return False  # no plotting name anywhere: skip the parse (most non-figure modules)
+    tree = _parse(code)
+    if tree is not None:
+        return _tree_draws(tree)
+    text = code.decode("utf-8", "replace") if isinstance(code, bytes) else code
+    return bool(_FALLBACK_IMPORT.search(text))
+
+
+def _raw_cells(raw: bytes) -> list[str] | None:
+    try:
+        nb = json.loads(raw)
+    except (ValueError, RecursionError):
+        return None
+    if not isinstance(nb, dict):
+        return None
+    cells: Any = nb.get("cells")
+    if cells is None and isinstance(nb.get("worksheets"), list) and nb["worksheets"]:
+        first = nb["worksheets"][0]  # nbformat 3 keeps cells in worksheets, source under "input"
+        cells = first.get("cells") if isinstance(first, dict) else None
+    if not isinstance(cells, list):
+        return None
+    out: list[str] = []
+    for cell in cells:
+        if not isinstance(cell, dict) or cell.get("cell_type") != "code":
+            continue
+        src = cell.get("source", cell.get("input", ""))
+        if isinstance(src, list):
+            src = "".join(s for s in src if isinstance(s, str))
+        if isinstance(src, str):
+            out.append(src)
+    return out
+
+
+def notebook_cells(raw: bytes) -> list[str] | None:
+    """The code cells of a notebook file as Python source, IPython magics and shell lines blanked.
+
+    Returns None when the file is not a readable notebook.  Blanking keeps line
+    numbers; a cell magic (``%%bash``) blanks its whole cell, since its body is
+    not Python.
+    """
+    cells = _raw_cells(raw)
+    return None if cells is None else [_blank_magics(c) for c in cells]
+
+
+def _blank_magics(src: str) -> str:
+    lines = src.splitlines()
+    if lines and lines[0].lstrip().startswith("%%"):
+        return "\n" * (len(lines) - 1)
+    return "\n".join("" if line.lstrip().startswith(("%", "!")) else line for line in lines)
+
+
+_MPL_MAGIC = re.compile(r"^[ \t]*%(?:matplotlib|pylab)\b", re.M)
+
+
+def _notebook_draws(cells: list[str]) -> bool:
+    for cell in cells:
+        # %matplotlib inline / %pylab set up plotting without a Python import.
+        if _MPL_MAGIC.search(cell) or code_draws(_blank_magics(cell)):
+            return True
+    return False
+
+
+def _read(path: Path) -> bytes | None:
+    try:
+        if path.stat().st_size > _MAX_SOURCE_BYTES:
+            return None
+        return path.read_bytes()
+    except OSError:
+        return None
+
+
+def _draws(path: Path) -> bool:
+    raw = _read(path)
+    if raw is None:
+        return False
+    if path.suffix == ".ipynb":
+        cells = _raw_cells(raw)
+        # A notebook that is not valid JSON is listed anyway: its run reports the damage.
+        return True if cells is None else _notebook_draws(cells)
+    return code_draws(raw)
+
+
+# --------------------------------------------------------------------------- discovery
+
+
+def _scripts(config: Config, files: list[str], skip: _Skipper) -> list[str]:
+    candidates = [f for f in files if f.endswith(SCRIPT_SUFFIXES) and not skip.path(f)]
+    if config.include:
+        chosen: set[str] = set()
+        for pattern in config.include:
+            hits = [f for f in candidates if glob_match(f, pattern)]
+            if not hits:
+                raise DiscoveryError(f"include pattern {pattern!r} matches no .py or .ipynb file under {config.root}")
+            chosen.update(hits)
+        picked = sorted(chosen)
+    else:
+        picked = [f for f in candidates if not _is_test(f) and _draws(config.root / f)]
+    picked = [f for f in picked if not _any_match(f, config.exclude)]
+    return _ordered(config, picked, set(files))
+
+
+def _ordered(config: Config, picked: list[str], files: set[str]) -> list[str]:
+    """``order`` scripts first, in their order, even when they draw nothing (they may write data)."""
+    first: list[str] = []
+    for entry in config.order:
+        if entry not in files:
+            raise DiscoveryError(f"order entry {entry!r} is not a file in the repo at {config.root}")
+        if entry not in first:
+            first.append(entry)
+    head = set(first)
+    return first + [f for f in picked if f not in head]
+
+
+def _own_files(config: Config) -> tuple[str, ...]:
+    """figproof's own files in the repo, which are never data or figures."""
+    out = []
+    for name in (config.accepted_file, config.cache_dir):
+        try:
+            out.append((config.root / name).resolve().relative_to(config.root.resolve()).as_posix())
+        except (ValueError, OSError):
+            continue
+    return tuple(out)
+
+
+def _figure_file(config: Config, rel: str) -> bool:
+    if config.figure_dirs:
+        return _any_match(rel, config.figure_dirs)
+    return rel.split("/", 1)[0] not in NON_FIGURE_DIRS
+
+
+def iter_files(root: Path) -> tuple[list[str], bool]:
+    """All candidate files under ``root`` (repo-relative POSIX, sorted) and whether git listed them."""
+    tracked = gitrepo.tracked_files(root)
+    if tracked is None:
+        return _walk(root), False
+    return tracked, True
+
+
+def discover(config: Config) -> Inventory:
+    """List the figure scripts, data files and committed figure files of ``config.root``.
+
+    Returns
+    -------
+    Inventory
+        Repo-relative POSIX paths: scripts (``order`` entries first, then sorted),
+        data files and figure files (sorted), the tracked files when git is used.
+
+    Raises
+    ------
+    DiscoveryError
+        When an explicit include pattern matches no script, or an ``order`` entry is not a file.
+    """
+    root = config.root
+    files, is_git = iter_files(root)
+    skip = _Skipper(root, files)
+    scripts = _scripts(config, files, skip)
+    own = _own_files(config)
+    visible = [f for f in files if not skip.path(f) and not any(f == o or f.startswith(o + "/") for o in own)]
+    data = [f for f in visible if _suffix(f) in DATA_SUFFIXES and not _NOT_DATA.match(f.rsplit("/", 1)[-1])]
+    figures = [f for f in visible if _suffix(f) in FIGURE_SUFFIXES and _figure_file(config, f)]
+    return Inventory(
+        scripts=tuple(scripts),
+        data_files=tuple(data),
+        figure_files=tuple(figures),
+        tracked=tuple(files) if is_git else (),
+        is_git=is_git,
+    )
+
+
+# --------------------------------------------------------------------------- working folder
+
+_EXTENSION = re.compile(r"\.[A-Za-z][A-Za-z0-9]{0,7}$")
+
+
+def _looks_like_path(text: str) -> bool:
+    if not 0 < len(text) <= 255 or any(c in text for c in "\n\r\t\0*?<>|\"{}"):
+        return False
+    if text.startswith(("/", "\\", "~")) or "://" in text or re.match(r"^[A-Za-z]:", text):
+        return False
+    if not text.strip("./\\ "):
+        return False
+    return "/" in text or bool(_EXTENSION.search(text))
+
+
+def _literals(trees: Iterable[ast.AST]) -> Iterator[str]:
+    for tree in trees:
+        for node in ast.walk(tree):
+            if isinstance(node, ast.Constant) and isinstance(node.value, str) and _looks_like_path(node.value):
+                yield node.value
+
+
+def _resolves(base: Path, literal: str, root: Path) -> bool:
+    try:
+        target = (base / literal).resolve()
+        target.relative_to(root)  # a path that leaves the repo will not exist in the check's copy
+        return target.exists()
+    except (ValueError, OSError, RuntimeError):
+        return False
+
+
+def choose_working_dir(root: Path, script: str, mode: str) -> str:
+    """Pick the folder a script runs in: ``"root"`` (the repo root) or ``"script"`` (its own folder).
+
+    Parameters
+    ----------
+    root
+        The repo root.
+    script
+        The script's repo-relative POSIX path.
+    mode
+        ``"root"`` or ``"script"`` force the answer; ``"auto"`` counts the string
+        literals that look like relative file paths and resolve from each folder,
+        and picks the folder where more resolve.  Ties go to the repo root for
+        ``.py`` files and to the script's folder for notebooks (Jupyter starts a
+        notebook's kernel in the notebook's folder).  A ``.py`` file that does not
+        parse runs from the root; its run reports the error.
+    """
+    if mode in ("root", "script"):
+        return mode
+    if mode != "auto":
+        raise ValueError(f"working-dir mode must be 'auto', 'root' or 'script', not {mode!r}")
+    notebook = script.endswith(".ipynb")
+    tie = "script" if notebook else "root"
+    path = root / script
+    raw = _read(path)
+    if raw is None:
+        return tie
+    if notebook:
+        cells = notebook_cells(raw)
+        trees = [t for t in (_parse(c) for c in cells or []) if t is not None]
+    else:
+        tree = _parse(raw)
+        if tree is None:
+            return "root"
+        trees = [tree]
+    real_root = root.resolve()
+    here = path.parent.resolve()
+    if here == real_root:
+        return tie
+    from_root = from_script = 0
+    for literal in sorted(set(_literals(trees))):
+        from_root += _resolves(real_root, literal, real_root)
+        from_script += _resolves(here, literal, real_root)
+    if from_root != from_script:
+        return "root" if from_root > from_script else "script"
+    return tie
+
+
+__all__ = [
+    "DATA_SUFFIXES",
+    "DiscoveryError",
+    "FIGURE_SUFFIXES",
+    "PLOT_MODULES",
+    "choose_working_dir",
+    "code_draws",
+    "discover",
+    "glob_match",
+    "iter_files",
+    "notebook_cells",
+]
