@@ -100,3 +100,55 @@ def run(*figs: FigureModel, path: str = "fig.py", status: str = "ok", **kw: Any)
 __all__ = ["Axes", "Axis", "BarSet", "Box", "ColorMapping", "ErrorBars", "FigureModel", "Line", "LoadedTable",
            "PlotCall", "PointSet", "Sample", "ScriptRun", "Source", "Text", "Violin", "axes", "bars",
            "errorbars", "figure", "line", "points", "run", "src", "to_display"]
+
+
+# --------------------------------------------------------------------------
+# added for the axes and visibility rule tests
+# --------------------------------------------------------------------------
+
+from figproof.model import Patch  # noqa: E402  (kept with the helpers that use it)
+
+
+def axes_with(x: Axis | None = None, y: Axis | None = None, *, index: int = 0, box=BOX, **fields: Any) -> Axes:
+    """An Axes with full control of both Axis records (scale, inversion, categories) and any other field."""
+    tuples = {k: tuple(v) if isinstance(v, list) else v for k, v in fields.items()}
+    return Axes(index=index, display_box=box, x=x or Axis(), y=y or Axis(), **tuples)
+
+
+def points_px(px: Sequence[float], py: Sequence[float], *, size: float | Sequence[float] = 36.0,
+              face=(0.12, 0.47, 0.71, 1.0), edge=None, line: int = 1, **kw: Any) -> PointSet:
+    """A point set given directly in display pixels (data coordinates equal to the pixels)."""
+    px_ = np.asarray(px, float)
+    py_ = np.asarray(py, float)
+    sizes = np.atleast_1d(np.asarray(size, float))
+    facecolors = np.atleast_2d(np.asarray(face, float))
+    edgecolors = facecolors if edge is None else np.atleast_2d(np.asarray(edge, float))
+    return PointSet(kind=kw.pop("kind", "scatter"), x=px_.copy(), y=py_.copy(), px=px_, py=py_, sizes=sizes,
+                    facecolors=facecolors, edgecolors=edgecolors, source=src(line), **kw)
+
+
+def bars_px(boxes: Sequence[Sequence[float]], *, color=(0.5, 0.5, 0.5, 1.0), zorder: float = 1.0,
+            draw_order: int | None = None, line: int = 1) -> BarSet:
+    """Vertical bars given by their display boxes (x0, y0, x1, y1); data values equal the pixels."""
+    b = np.asarray(boxes, float).reshape(-1, 4)
+    return BarSet(positions=(b[:, 0] + b[:, 2]) / 2, widths=b[:, 2] - b[:, 0], bottoms=b[:, 1],
+                  heights=b[:, 3] - b[:, 1], facecolors=np.tile(np.asarray(color, float), (len(b), 1)),
+                  edgecolors=np.tile(np.asarray(color, float), (len(b), 1)), display_boxes=b, zorder=zorder,
+                  draw_order=draw_order, source=src(line))
+
+
+def patch(kind: str, box: Sequence[float], *, face=(0.5, 0.5, 0.5, 1.0), zorder: float = 1.0,
+          draw_order: int | None = None, line: int = 1) -> Patch:
+    return Patch(kind=kind, display_box=tuple(map(float, box)), facecolor=tuple(map(float, face)),
+                 zorder=zorder, draw_order=draw_order, source=src(line))
+
+
+def box(position: float, values: Sequence[float], *, orientation: str = "vertical", line: int = 1) -> Box:
+    """A box from five numbers (whislo, q1, median, q3, whishi) and optional fliers after them."""
+    v = [float(a) for a in values]
+    return Box(orientation=orientation, position=float(position), whislo=v[0], q1=v[1], median=v[2], q3=v[3],
+               whishi=v[4], fliers=np.asarray(v[5:], float), source=src(line))
+
+
+def text(content: str, box: Sequence[float], *, role: str = "annotation", in_axes: bool = True) -> Text:
+    return Text(text=content, role=role, display_box=tuple(map(float, box)), in_axes=in_axes)
