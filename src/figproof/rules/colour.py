@@ -1,0 +1,832 @@
+"""Colour rules: colour maps, colour pairs under colour-vision deficiency and in grayscale, contrast.
+
+Which colours "must be told apart" in one axes (the series of that axes):
+
+- each point set (scatter collection or markers of a line) that is not colour-mapped
+  (``PointSet.colormap is None``): its face colour, or its edge colour where the faces are
+  transparent (``'none'`` faces arrive as alpha 0); a point set with several colours per
+  point contributes each distinct colour as a category (seaborn ``hue=``, ``c=[list]``);
+- each line with ``role == "data"`` (error-bar, reference, box and violin lines are not series);
+- each bar set: its face colours (several when bars are coloured one by one), edge colour for
+  hollow bars;
+- each filled area (``Patch.kind`` ``"fill"`` or ``"polygon"``: fill_between, stackplot, violin
+  bodies, hand-drawn polygons);
+- each distinct colour of a colour map with few colours (``ColorMapping.n_colors`` at most
+  ``palette_max_colors``) drawn as an image or mesh, since such a map labels categories;
+  a map whose few colours are ordered in lightness is a stepped continuous map and is judged
+  as a map instead.  Scatter ``c=`` maps are skipped here: the point set already gives the
+  colours actually used.
+
+Legend entries enter through the artists they label (their labels name the colours in
+messages).  Colours are blended over the axes background before any measurement, identical
+drawn colours count once, and two series drawn in the same base colour (say a line and its
+translucent band) or with the same label are one series drawn twice, never a clashing pair.
+"""
+
+from __future__ import annotations
+
+import functools
+import hashlib
+from collections.abc import Iterator
+from dataclasses import dataclass
+
+import numpy as np
+
+from figproof import colour_science as cs
+from figproof.findings import Hit
+from figproof.model import Axes, ColorMapping, FigureModel, Source, Text
+from figproof.rules.base import Knob, Knobs, rule
+
+# --------------------------------------------------------------------------
+# backgrounds and series
+# --------------------------------------------------------------------------
+
+
+def _opaque(rgba: tuple[float, ...] | None, under: np.ndarray) -> np.ndarray:
+    """An RGBA colour as the opaque sRGB colour it shows over ``under``."""
+    if rgba is None:
+        return under
+    out = cs.blend_over(rgba, under)
+    return under if np.isnan(out).any() else out[0]
+
+
+def figure_background(figure: FigureModel) -> np.ndarray:
+    """The figure's face colour as seen (a transparent figure is shown on white)."""
+    return _opaque(figure.facecolor, np.array(cs.WHITE))
+
+
+def axes_background(ax: Axes, figure: FigureModel) -> np.ndarray:
+    """The axes' face colour as seen over the figure background."""
+    return _opaque(ax.facecolor, figure_background(figure))
+
+
+def _public(label: str) -> str:
+    # matplotlib marks artists that stay out of legends with a leading underscore
+    return "" if label.startswith("_") else label
+
+
+@dataclass(frozen=True, slots=True)
+class Series:
+    """One colour a reader must tell apart from the others in its axes."""
+
+    rgba: tuple[float, float, float, float]
+    label: str
+    what: str  # line | points | bars | area | category
+    source: Source | None
+
+
+def _distinct_rows(colors: np.ndarray) -> np.ndarray:
+    """Unique RGBA rows in order of first appearance (colours equal to 8 bits count once)."""
+    arr = cs.as_rgba(colors)
+    arr = arr[~np.isnan(arr).any(axis=1)]
+    if arr.shape[0] == 0:
+        return arr
+    _, first = np.unique(np.round(arr * 255).astype(int), axis=0, return_index=True)
+    return arr[np.sort(first)]
+
+
+def _visible_colors(faces: np.ndarray, edges: np.ndarray) -> np.ndarray:
+    """Face colours, or edge colours where the faces are transparent ('none')."""
+    f = cs.as_rgba(faces)
+    e = cs.as_rgba(edges)
+    if f.shape[0] == 0:
+        return e
+    if e.shape[0] not in (1, f.shape[0]):
+        return f
+    e = np.broadcast_to(e, f.shape) if e.shape[0] else f
+    hollow = np.nan_to_num(f[:, 3]) <= 0.0
+    return np.where(hollow[:, None], e, f)
+
+
+def _is_palette(cm: ColorMapping, max_colors: float) -> bool:
+    return (not cm.is_rgb) and 1 < cm.n_colors <= max_colors
+
+
+def _ordered_in_lightness(rgb: np.ndarray) -> bool:
+    """True when the colours' J' steps all go the same way (a stepped continuous map)."""
+    if rgb.shape[0] < 2:
+        return True
+    steps = np.diff(cs.srgb_to_ucs(rgb)[:, 0])
+    return bool(np.all(steps > 0) or np.all(steps < 0))
+
+
+def palette_colors(cm: ColorMapping, max_colors: float) -> np.ndarray:
+    """The distinct colours of a few-colour map that labels categories (empty when it does not)."""
+    if not _is_palette(cm, max_colors):
+        return np.zeros((0, 4))
+    rows = _distinct_rows(np.asarray(cm.samples))
+    if rows.shape[0] < 2 or _ordered_in_lightness(rows[:, :3]):
+        return np.zeros((0, 4))
+    return rows
+
+
+def axes_series(ax: Axes, *, palette_max_colors: float, max_colors: float) -> list[Series]:
+    """The colours of ``ax`` that must be told apart, in drawing-list order (see the module doc)."""
+    found: list[Series] = []
+
+    def add(colors: np.ndarray, label: str, what: str, source: Source | None) -> None:
+        rows = _distinct_rows(colors)
+        rows = rows[rows[:, 3] > 0.0] if rows.shape[0] else rows
+        if rows.shape[0] > max_colors:
+            return  # so many colours encode a continuous variable, not categories
+        for k, row in enumerate(rows):
+            name = label if rows.shape[0] == 1 else (f"{label} {k + 1}" if label else "")
+            found.append(Series(tuple(float(v) for v in row), name, what, source))  # type: ignore[arg-type]
+
+    if ax.is_colorbar:
+        return found
+    for ps in ax.points:
+        if ps.colormap is not None:
+            continue
+        add(_visible_colors(ps.facecolors, ps.edgecolors), _public(ps.label), "points", ps.source)
+    for ln in ax.lines:
+        if ln.role == "data" and ln.linestyle not in ("", " ", "None", "none"):
+            add(np.asarray([ln.color], float), _public(ln.label), "line", ln.source)
+    for bs in ax.bars:
+        add(_visible_colors(bs.facecolors, bs.edgecolors), _public(bs.label), "bars", bs.source)
+    for patch in ax.patches:
+        if patch.kind in ("fill", "polygon"):
+            add(_visible_colors(np.asarray([patch.facecolor]), np.asarray([patch.edgecolor])),
+                _public(patch.label), "area", patch.source)
+    for cm in ax.colormaps:
+        if cm.kind != "scatter" and cm.kind != "colorbar":
+            add(palette_colors(cm, palette_max_colors), _public(cm.name), "category", cm.source)
+    return found
+
+
+def _name(s: Series, hex_: str) -> str:
+    return f"'{s.label}' ({hex_})" if s.label else f"{s.what} {hex_}"
+
+
+@dataclass(frozen=True, slots=True)
+class _Pairs:
+    """Series of one axes, blended, deduplicated, with the pairs worth comparing."""
+
+    axes: int
+    series: list[Series]
+    rgb: np.ndarray  # (n, 3) as seen
+    hexes: list[str]
+    pairs: list[tuple[int, int]]
+
+
+def _axes_pairs(figure: FigureModel, knobs: Knobs) -> list[_Pairs]:
+    out: list[_Pairs] = []
+    for ax in figure.axes:
+        series = axes_series(ax, palette_max_colors=knobs["palette_max_colors"], max_colors=knobs["max_colors"])
+        if len(series) < 2:
+            continue
+        bg = axes_background(ax, figure)
+        rgb = cs.blend_over(np.array([s.rgba for s in series]), bg)
+        keep: list[int] = []
+        seen: set[str] = set()
+        for i in range(len(series)):
+            h = cs.to_hex(rgb[i])
+            if h not in seen:
+                seen.add(h)
+                keep.append(i)
+        series = [series[i] for i in keep]
+        rgb = rgb[keep]
+        base = [cs.to_hex(s.rgba) for s in series]
+        pairs = [
+            (i, j)
+            for i in range(len(series))
+            for j in range(i + 1, len(series))
+            if base[i] != base[j] and not (series[i].label and series[i].label == series[j].label)
+        ]
+        if pairs:
+            out.append(_Pairs(ax.index, series, rgb, [cs.to_hex(c) for c in rgb], pairs))
+    return out
+
+
+# --------------------------------------------------------------------------
+# colormap-not-uniform
+# --------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, slots=True)
+class MapProblem:
+    """One defect of a colour map, as numbers; the rule turns it into a message."""
+
+    kind: str  # reversal | centre-chroma | ends | cyclic-shape | steps
+    shape: str  # sequential | diverging | cyclic
+    severity: str  # error | warning
+    value: float
+    limit: float
+    at: float = 0.0  # position in the map (0-1) where it happens
+    low: float = 0.0
+    high: float = 0.0
+
+
+def _drawdown(j: np.ndarray, rising: bool) -> tuple[float, int]:
+    """Largest move of ``j`` against the given direction, and where it ends."""
+    if j.size < 2:
+        return 0.0, 0
+    back = np.maximum.accumulate(j) - j if rising else j - np.minimum.accumulate(j)
+    k = int(np.argmax(back))
+    return float(back[k]), k
+
+
+@functools.lru_cache(maxsize=512)
+def _judge_cached(data: bytes, rows: int, params: tuple[float, ...]) -> tuple[MapProblem, ...]:
+    """Judge a colour map from its samples; cached on the sample bytes (pure: same input, same verdict)."""
+    samples = np.frombuffer(data, dtype=float).reshape(rows, -1)
+    return judge_colormap(samples, *params)
+
+
+def judge_colormap(
+    samples: np.ndarray,
+    reversal: float = 5.0,
+    centre_chroma: float = 20.0,
+    ends_difference: float = 15.0,
+    cyclic_ends: float = 5.0,
+    centre_offset: float = 0.2,
+    step_cv: float = 0.6,
+    blocks: float = 32.0,
+) -> tuple[MapProblem, ...]:
+    """Classify a colour map from its sampled colours and list its defects.
+
+    Parameters
+    ----------
+    samples
+        ``(n, 3)`` or ``(n, 4)`` sRGB1 samples evenly spaced over the map (alpha ignored).
+    reversal
+        Largest tolerated move of lightness J' against its direction.
+    centre_chroma
+        Chroma at a diverging map's centre from which the map counts as a rainbow.
+    ends_difference
+        Largest tolerated J' difference between a diverging map's two ends.
+    cyclic_ends
+        ΔE' below which the two ends count as equal (a cyclic map).
+    centre_offset
+        How far from the middle (as a fraction of the map) a diverging map's turning point may lie.
+    step_cv
+        Largest tolerated coefficient of variation of ΔE' over ``blocks`` equal blocks.
+
+    Returns
+    -------
+    tuple of MapProblem
+        Empty when the map is fine.
+    """
+    arr = np.asarray(samples, dtype=float)
+    if arr.ndim != 2 or arr.shape[1] < 3:
+        return ()
+    arr = arr[np.isfinite(arr[:, :3]).all(axis=1), :3]
+    if arr.shape[0] < 3:
+        return ()
+    ucs = cs.srgb_to_ucs(np.clip(arr, 0.0, 1.0))
+    j = ucs[:, 0]
+    n = j.size
+    pos = np.linspace(0.0, 1.0, n)
+    problems: list[MapProblem] = []
+
+    if float(cs.ucs_distance(ucs[0], ucs[-1])) < cyclic_ends:
+        shape = "cyclic"
+        # around a cycle a good map is V- or Λ-shaped in any phase: from its lightest
+        # sample J' must fall to the darkest one and then rise back
+        top = int(np.argmax(j))
+        ring = np.roll(j[:-1], -top)
+        bottom = int(np.argmin(ring))
+        fall, k1 = _drawdown(ring[: bottom + 1], rising=False)
+        rise, k2 = _drawdown(ring[bottom:], rising=True)
+        worst, k = (fall, k1) if fall >= rise else (rise, bottom + k2)
+        if worst > reversal:
+            problems.append(MapProblem("cyclic-shape", shape, "error", worst, reversal,
+                                       at=float(pos[(k + top) % (n - 1)]), low=float(j.min()), high=float(j.max())))
+    else:
+        ends_hi = max(j[0], j[-1])
+        ends_lo = min(j[0], j[-1])
+        centre: int | None = None
+        peak, trough = int(np.argmax(j)), int(np.argmin(j))
+        candidates = []
+        if j[peak] - ends_hi > reversal and 0 < peak < n - 1:
+            candidates.append((float(j[peak] - ends_hi), peak))
+        if ends_lo - j[trough] > reversal and 0 < trough < n - 1:
+            candidates.append((float(ends_lo - j[trough]), trough))
+        for _, idx in sorted(candidates, reverse=True):
+            if abs(pos[idx] - 0.5) <= centre_offset:
+                centre = idx
+                break
+        if centre is not None:
+            shape = "diverging"
+            rises_first = bool(j[centre] > ends_hi)
+            left, kl = _drawdown(j[: centre + 1], rising=rises_first)
+            right, kr = _drawdown(j[centre:], rising=not rises_first)
+            worst, k = (left, kl) if left >= right else (right, centre + kr)
+            if worst > reversal:
+                problems.append(MapProblem("reversal", shape, "error", worst, reversal, at=float(pos[k]),
+                                           low=float(j.min()), high=float(j.max())))
+            c = float(cs.chroma(ucs[centre]))
+            if c >= centre_chroma:
+                problems.append(MapProblem("centre-chroma", shape, "error", c, centre_chroma, at=float(pos[centre])))
+            gap = float(abs(j[0] - j[-1]))
+            if gap > ends_difference:
+                problems.append(MapProblem("ends", shape, "warning", gap, ends_difference, low=float(j[0]),
+                                           high=float(j[-1])))
+        else:
+            shape = "sequential"
+            worst, k = _drawdown(j, rising=bool(j[-1] >= j[0]))
+            if worst > reversal:
+                problems.append(MapProblem("reversal", shape, "error", worst, reversal, at=float(pos[k]),
+                                           low=float(j[0]), high=float(j[-1])))
+
+    # stepped maps repeat colours: measure evenness over their distinct steps only
+    steps = cs.ucs_distance(ucs[1:], ucs[:-1])
+    steps = steps[steps > 1e-9]
+    nblocks = int(min(blocks, steps.size))
+    if nblocks >= 2:
+        sums = np.array([b.sum() for b in np.array_split(steps, nblocks)])
+        mean = float(sums.mean())
+        cv = float(sums.std() / mean) if mean > 0 else 0.0
+        if cv > step_cv:
+            problems.append(MapProblem("steps", shape, "warning", cv, step_cv))
+    return tuple(problems)
+
+
+_MAP_KNOBS = (
+    Knob(name="reversal", default=5.0, minimum=0.0,
+         help="largest tolerated move of lightness J' (CAM02-UCS) against the map's direction"),
+    Knob(name="centre_chroma", default=20.0, minimum=0.0,
+         help="chroma at a diverging map's centre from which it counts as a rainbow"),
+    Knob(name="ends_difference", default=15.0, minimum=0.0,
+         help="largest tolerated J' difference between the two ends of a diverging map (warning)"),
+    Knob(name="cyclic_ends", default=5.0, minimum=0.0,
+         help="CAM02-UCS ΔE' below which a map's two ends count as equal (a cyclic map)"),
+    Knob(name="centre_offset", default=0.2, minimum=0.0, maximum=0.5,
+         help="how far from the middle (fraction of the map) a diverging map may turn"),
+    Knob(name="step_cv", default=0.6, minimum=0.0,
+         help="largest tolerated coefficient of variation of ΔE' over equal blocks (warning)"),
+    Knob(name="blocks", default=32.0, minimum=2.0, help="number of equal blocks for the step evenness"),
+    Knob(name="palette_max_colors", default=20.0, minimum=0.0,
+         help="a map with at most this many colours, not ordered in lightness, is a categorical palette"),
+)
+
+def _map_message(cm: ColorMapping, p: MapProblem) -> str:
+    name = f"colour map '{cm.name}'" if cm.name else "an unnamed colour map"
+    where = {"image": "an image", "mesh": "a mesh", "scatter": "a scatter", "contour": "a contour set",
+             "colorbar": "a colorbar"}.get(cm.kind, cm.kind)
+    head = f"{name} (used by {where})"
+    if p.kind == "reversal" and p.shape == "sequential":
+        return (f"{head} goes from lightness J' {p.low:.0f} to {p.high:.0f} but reverses by {p.value:.1f} "
+                f"around {p.at:.0%} of its range (limit {p.limit:g})")
+    if p.kind == "reversal":
+        return (f"{head} turns in lightness near its middle like a diverging map, but one half reverses by "
+                f"{p.value:.1f} around {p.at:.0%} of its range (limit {p.limit:g})")
+    if p.kind == "centre-chroma":
+        return (f"{head} rises and falls in lightness about a coloured centre, chroma {p.value:.1f} at "
+                f"{p.at:.0%} of its range where a diverging map's centre is neutral (below {p.limit:g}), "
+                f"so it reads as a rainbow")
+    if p.kind == "ends":
+        return (f"{head} is diverging with ends of unequal lightness, J' {p.low:.0f} and {p.high:.0f} "
+                f"(difference {p.value:.1f}, limit {p.limit:g})")
+    if p.kind == "cyclic-shape":
+        return (f"{head} is cyclic but not V- or Λ-shaped in lightness: J' reverses by {p.value:.1f} around "
+                f"{p.at:.0%} of the cycle (limit {p.limit:g})")
+    return (f"{head} changes colour at a very uneven rate: the coefficient of variation of ΔE' over equal "
+            f"blocks is {p.value:.2f} (limit {p.limit:g})")
+
+
+@rule(
+    "colormap-not-uniform",
+    severity="error",
+    confidence="likely",
+    knobs=_MAP_KNOBS,
+    why="""
+        Readers judge the size of a value by the lightness of its colour. A colour map whose lightness
+        rises and falls (jet, rainbow, hsv, turbo and most "spectral" maps) draws bright bands and
+        sharp edges where the data change smoothly, and hides real gradients where its lightness is
+        flat; it also collapses to an unreadable sequence in grayscale and for colour-blind readers.
+        figproof judges every colour map the figure actually uses from its own sampled colours, not
+        its name, in the perceptually uniform CAM02-UCS space: a sequential map must keep lightness
+        J' moving one way, a diverging map must run monotonically from a neutral centre to each end,
+        a cyclic map must be V- or Λ-shaped around its cycle, and the colour should change at an even
+        perceptual rate.
+    """,
+    fix="""
+        For ordered values use a perceptually uniform sequential map: `cmap="viridis"` (the default),
+        "cividis", "magma", "plasma", "inferno", or a ColorBrewer map such as "Blues". For values
+        above and below a meaningful centre use a diverging map ("RdBu_r", "coolwarm", "PuOr") with
+        `norm=matplotlib.colors.TwoSlopeNorm(vcenter=...)`. For angles or phases use "twilight". For
+        categories use a qualitative palette with few colours and check it with
+        colours-confusable-cvd.
+    """,
+    sources=(
+        "Luo, Cui & Li (2006), Uniform colour spaces based on CIECAM02, Color Res. Appl. 31(4): CAM02-UCS.",
+        "Borland & Taylor (2007), Rainbow color map (still) considered harmful, IEEE CG&A 27(2).",
+        "van der Walt & Smith (2015), the viridis/magma/inferno/plasma maps of matplotlib 2.0 (from memory).",
+        "Nuñez, Anderton & Renslow (2018), cividis, PLOS ONE 13(7) e0199239.",
+        "Moreland (2009), Diverging color maps for scientific visualization (from memory).",
+        "Thresholds (J' reversal 5, centre chroma 20, ends 15, step CV 0.6 over 32 blocks): common practice.",
+    ),
+    bad="""
+        import matplotlib
+        matplotlib.use("Agg")
+        import matplotlib.pyplot as plt
+        import numpy as np
+        y, x = np.mgrid[-2:2:200j, -2:2:200j]
+        field = np.exp(-(x**2 + y**2))
+        fig, ax = plt.subplots()
+        image = ax.imshow(field, cmap="jet")
+        fig.colorbar(image, ax=ax, label="signal (a.u.)")
+        fig.savefig("signal.png")
+    """,
+    good="""
+        import matplotlib
+        matplotlib.use("Agg")
+        import matplotlib.pyplot as plt
+        import numpy as np
+        y, x = np.mgrid[-2:2:200j, -2:2:200j]
+        field = np.exp(-(x**2 + y**2))
+        fig, ax = plt.subplots()
+        image = ax.imshow(field, cmap="viridis")
+        fig.colorbar(image, ax=ax, label="signal (a.u.)")
+        fig.savefig("signal.png")
+    """,
+)
+def colormap_not_uniform(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
+    """A colour map whose lightness is not monotonic or not perceptually even is used for continuous values."""
+    params = tuple(float(knobs[k.name]) for k in _MAP_KNOBS if k.name != "palette_max_colors")
+    reported: set[str] = set()
+    # judge image/mesh/scatter maps before colorbars, so a finding points at the plotting call
+    entries = [(ax, cm) for ax in figure.axes for cm in ax.colormaps]
+    entries.sort(key=lambda e: e[1].kind == "colorbar")
+    for ax, cm in entries:
+        if cm.is_rgb or palette_colors(cm, knobs["palette_max_colors"]).shape[0]:
+            continue  # RGB images have no map; few unordered colours are a palette (judged as pairs)
+        samples = np.ascontiguousarray(np.asarray(cm.samples, dtype=float))
+        if samples.ndim != 2 or samples.shape[0] < 3 or samples.shape[1] < 3:
+            continue
+        digest = hashlib.sha256(samples.tobytes()).hexdigest()[:12]
+        if digest in reported:
+            continue
+        reported.add(digest)
+        for p in _judge_cached(samples.tobytes(), samples.shape[0], params):
+            yield Hit(message=_map_message(cm, p), source=cm.source, axes=ax.index,
+                      severity=None if p.severity == "error" else p.severity, key=f"map:{digest}:{p.kind}")
+
+
+# --------------------------------------------------------------------------
+# colours-confusable-cvd
+# --------------------------------------------------------------------------
+
+_SERIES_KNOBS = (
+    Knob(name="palette_max_colors", default=20.0, minimum=0.0,
+         help="a colour map with at most this many colours, not ordered in lightness, counts as a palette"),
+    Knob(name="max_colors", default=60.0, minimum=2.0,
+         help="an artist with more distinct colours than this encodes a continuous variable and is skipped"),
+)
+
+
+@rule(
+    "colours-confusable-cvd",
+    severity="error",
+    confidence="likely",
+    knobs=(
+        Knob(name="cvd_severity", default=100.0, minimum=0.0, maximum=100.0,
+             help="severity of the simulated deficiency, 0 (normal vision) to 100 (dichromacy)"),
+        Knob(name="delta_e", default=10.0, minimum=0.0,
+             help="CAM02-UCS ΔE' below which two colours count as confusable"),
+        Knob(name="hue_chroma", default=20.0, minimum=0.0,
+             help="a'b' distance of a pair in normal vision from which its hue difference matters"),
+        Knob(name="hue_lost", default=5.0, minimum=0.0,
+             help="a'b' distance under simulation below which that hue difference counts as lost"),
+        *_SERIES_KNOBS,
+    ),
+    why="""
+        About 8% of men and 0.5% of women of Northern European ancestry have a red-green colour-vision
+        deficiency (protan or deutan); tritan vision is much rarer. In most review chains someone cannot
+        tell a red series from a green one, and a legend that relies on that difference leaves them
+        guessing which curve is which. figproof takes the colours a reader must tell apart in each axes
+        (lines, point sets, bar groups, filled areas, few-colour palettes), blends them over the axes
+        background, simulates protan, deutan and tritan vision with the Machado et al. (2009) model and
+        measures every pair's perceptual distance ΔE' in CAM02-UCS. Pairs closer than the limit for
+        normal, protan or deutan vision are errors; for tritan vision, or when a pair keeps only its
+        lightness difference, they are warnings.
+    """,
+    fix="""
+        Choose a palette designed for colour-blind readers, such as Okabe & Ito's
+        ["#E69F00", "#56B4E9", "#009E73", "#F0E442", "#0072B2", "#D55E00", "#CC79A7", "#000000"],
+        or matplotlib's "tableau-colorblind10" style (`plt.style.use("tableau-colorblind10")`). Make
+        the two clashing series differ in lightness as well as hue, and add a second cue: a different
+        marker, line style or direct labels next to the data.
+    """,
+    sources=(
+        "Machado, Oliveira & Fernandes (2009), A physiologically-based model for simulation of color vision "
+        "deficiency, IEEE TVCG 15(6) (via colorspacious 'sRGB1+CVD').",
+        "Luo, Cui & Li (2006), CAM02-UCS colour difference ΔE' (via colorspacious).",
+        "Okabe & Ito (2008), Color Universal Design (CUD): how to make figures and presentations that are "
+        "friendly to colorblind people (from memory).",
+        "Prevalence of about 8% of men and 0.5% of women of Northern European ancestry: widely cited figure "
+        "(from memory).",
+        "ΔE' limit 10 and the a'b' limits 20/5: common practice.",
+    ),
+    bad="""
+        import matplotlib
+        matplotlib.use("Agg")
+        import matplotlib.pyplot as plt
+        import numpy as np
+        days = np.arange(10)
+        fig, ax = plt.subplots()
+        ax.plot(days, 2.0 + 0.3 * days, color="tab:red", label="treated")
+        ax.plot(days, 2.0 + 0.1 * days, color="tab:green", label="control")
+        ax.legend()
+        fig.savefig("growth.png")
+    """,
+    good="""
+        import matplotlib
+        matplotlib.use("Agg")
+        import matplotlib.pyplot as plt
+        import numpy as np
+        days = np.arange(10)
+        fig, ax = plt.subplots()
+        ax.plot(days, 2.0 + 0.3 * days, color="#E69F00", label="treated")
+        ax.plot(days, 2.0 + 0.1 * days, color="#0072B2", label="control")
+        ax.legend()
+        fig.savefig("growth.png")
+    """,
+)
+def colours_confusable_cvd(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
+    """Two colours that must be told apart in one axes collapse under simulated protan, deutan or tritan vision."""
+    groups = _axes_pairs(figure, knobs)
+    if not groups:
+        return
+    severity = cs.check_severity(min(max(float(knobs["cvd_severity"]), 0.0), 100.0))
+    # every colour of the figure goes through one simulation/conversion batch
+    sizes = [g.rgb.shape[0] for g in groups]
+    ucs_all = cs.vision_ucs(np.concatenate([g.rgb for g in groups]), severity)
+    limit = float(knobs["delta_e"])
+    start = 0
+    for g, size in zip(groups, sizes, strict=True):
+        ucs = ucs_all[:, start : start + size]
+        start += size
+        de = cs.pairwise_delta_e(ucs)  # (4, n, n)
+        ab = cs.pairwise_delta_e(ucs[..., 1:])  # distance in the a'b' plane: hue and chroma only
+        for i, j in g.pairs:
+            a, b = g.series[i], g.series[j]
+            names = f"{_name(a, g.hexes[i])} and {_name(b, g.hexes[j])}"
+            d = {v: float(de[k, i, j]) for k, v in enumerate(cs.VISIONS)}
+            source = b.source or a.source
+            key = f"{g.hexes[i]}/{g.hexes[j]}"
+            strict = [v for v in ("normal", "protan", "deutan") if d[v] < limit]
+            if strict:
+                # a pair that is already too close for normal vision is reported as such
+                worst = "normal" if "normal" in strict else min(strict, key=lambda v: d[v])
+                vision = "normal vision" if worst == "normal" else f"simulated {worst} vision"
+                also = [f"{v} {d[v]:.1f}" for v in strict if v != worst]
+                extra = f" (also {', '.join(also)})" if also else ""
+                yield Hit(message=f"{names} differ by ΔE' {d[worst]:.1f} under {vision}, below {limit:g}{extra}",
+                          source=source, axes=g.axes, key=f"{key}/{worst}")
+                continue
+            if d["tritan"] < limit:
+                yield Hit(message=f"{names} differ by ΔE' {d['tritan']:.1f} under simulated tritan vision, "
+                                  f"below {limit:g}",
+                          source=source, axes=g.axes, severity="warning", key=f"{key}/tritan")
+                continue
+            normal_ab = float(ab[0, i, j])
+            if normal_ab >= knobs["hue_chroma"]:
+                lost = [(float(ab[k, i, j]), v) for k, v in enumerate(cs.VISIONS) if k and ab[k, i, j] < knobs["hue_lost"]]
+                if lost:
+                    value, v = min(lost)
+                    yield Hit(message=f"{names} keep only their lightness difference under simulated {v} vision: "
+                                      f"their a'b' (hue) distance drops from {normal_ab:.1f} to {value:.1f}",
+                              source=source, axes=g.axes, severity="warning", key=f"{key}/hue-{v}")
+
+
+# --------------------------------------------------------------------------
+# colours-confusable-gray
+# --------------------------------------------------------------------------
+
+
+@rule(
+    "colours-confusable-gray",
+    severity="note",
+    confidence="likely",
+    knobs=(
+        Knob(name="lightness_difference", default=8.0, minimum=0.0,
+             help="CIE L* difference below which two colours look alike in grayscale"),
+        *_SERIES_KNOBS,
+    ),
+    why="""
+        Figures are printed in black and white, photocopied, and read on e-ink screens, and readers with
+        achromatopsia see no hue at all. Two series that differ only in hue become the same gray. The
+        lightness a grayscale rendering keeps is CIE L*; figproof compares it for every pair of colours
+        that must be told apart in one axes, after blending them over the axes background.
+    """,
+    fix="""
+        Make the series differ in lightness (a light and a dark colour, as in the ColorBrewer or Okabe &
+        Ito palettes), or add a cue that survives grayscale: markers, line styles, hatching, or direct
+        labels.
+    """,
+    sources=(
+        "CIE 15:2004 Colorimetry, CIE 1976 L* (via colorspacious 'CIELab', D65).",
+        "L* difference 8: common practice.",
+    ),
+    bad="""
+        import matplotlib
+        matplotlib.use("Agg")
+        import matplotlib.pyplot as plt
+        fig, ax = plt.subplots()
+        ax.bar([0, 1], [3, 5], color="tab:blue", label="2023")
+        ax.bar([0.4, 1.4], [4, 6], width=0.4, color="tab:red", label="2024")
+        ax.legend()
+        fig.savefig("counts.png")
+    """,
+    good="""
+        import matplotlib
+        matplotlib.use("Agg")
+        import matplotlib.pyplot as plt
+        fig, ax = plt.subplots()
+        ax.bar([0, 1], [3, 5], color="#0072B2", label="2023")
+        ax.bar([0.4, 1.4], [4, 6], width=0.4, color="#E69F00", label="2024")
+        ax.legend()
+        fig.savefig("counts.png")
+    """,
+)
+def colours_confusable_gray(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
+    """Two colours that must be told apart in one axes have nearly the same lightness in grayscale."""
+    groups = _axes_pairs(figure, knobs)
+    if not groups:
+        return
+    lightness = cs.cie_lightness(np.concatenate([g.rgb for g in groups]))
+    limit = float(knobs["lightness_difference"])
+    start = 0
+    for g in groups:
+        lstar = lightness[start : start + g.rgb.shape[0]]
+        start += g.rgb.shape[0]
+        for i, j in g.pairs:
+            gap = float(abs(lstar[i] - lstar[j]))
+            if gap < limit:
+                a, b = g.series[i], g.series[j]
+                yield Hit(message=f"{_name(a, g.hexes[i])} and {_name(b, g.hexes[j])} have CIE L* {lstar[i]:.1f} "
+                                  f"and {lstar[j]:.1f} (difference {gap:.1f}, below {limit:g}) and look alike in "
+                                  f"grayscale",
+                          source=b.source or a.source, axes=g.axes, key=f"{g.hexes[i]}/{g.hexes[j]}")
+
+
+# --------------------------------------------------------------------------
+# low-contrast
+# --------------------------------------------------------------------------
+
+_BOLD = {"bold", "heavy", "extra bold", "extrabold", "ultrabold", "black"}
+
+
+def is_large_text(text: Text, large_size: float, large_bold_size: float) -> bool:
+    """WCAG 2.1 "large scale" text: at least 18 pt, or at least 14 pt and bold."""
+    weight = text.weight.strip().lower()
+    bold = weight in _BOLD or (weight.isdigit() and int(weight) >= 700)
+    return text.fontsize >= large_size or (bold and text.fontsize >= large_bold_size)
+
+
+def _text_background(text: Text, ax: Axes, figure: FigureModel) -> np.ndarray:
+    under = axes_background(ax, figure) if text.in_axes else figure_background(figure)
+    if text.role == "legend":
+        frames = [p for p in ax.patches if p.kind == "legend"]
+        if frames:
+            under = _opaque(frames[0].facecolor, under)
+    return _opaque(text.background, under)
+
+
+def _floor2(x: float) -> str:
+    # shown truncated, never rounded up: 2.999 must not print as "3.00" next to "below 3:1"
+    return f"{np.floor(x * 100.0) / 100.0:.2f}"
+
+
+@rule(
+    "low-contrast",
+    severity="error",
+    confidence="certain",
+    knobs=(
+        Knob(name="text_ratio", default=4.5, minimum=1.0, maximum=21.0,
+             help="lowest WCAG contrast ratio for normal text"),
+        Knob(name="large_text_ratio", default=3.0, minimum=1.0, maximum=21.0,
+             help="lowest WCAG contrast ratio for large text"),
+        Knob(name="mark_ratio", default=3.0, minimum=1.0, maximum=21.0,
+             help="lowest WCAG contrast ratio for data marks (lines, markers, bars); a warning"),
+        Knob(name="large_size", default=18.0, minimum=0.0, help="font size (pt) from which text is large"),
+        Knob(name="large_bold_size", default=14.0, minimum=0.0,
+             help="font size (pt) from which bold text is large"),
+    ),
+    why="""
+        Pale text and marks vanish on projectors, in print and for readers with low vision. WCAG 2.1 sets
+        the contrast ratio (L1 + 0.05) / (L2 + 0.05) between the relative luminances of foreground and
+        background: at least 4.5:1 for normal text, 3:1 for large text (18 pt, or 14 pt bold), and 3:1
+        for graphical objects needed to understand the content, such as the lines, markers and bars of a
+        plot. figproof measures each text against what it sits on (its own box, the legend frame, the
+        axes face inside the axes, the figure face outside) and each data mark against the axes face,
+        after blending transparency. The ratio is never rounded: 2.999 fails 3:1.
+    """,
+    fix="""
+        Darken light text and marks (for example "#595959" or darker on white) or lighten the background;
+        avoid light grays, yellows and pastel colours for thin lines and small markers on white, or give
+        light markers a dark edge colour.
+    """,
+    sources=(
+        "W3C (2018), Web Content Accessibility Guidelines (WCAG) 2.1: relative luminance, contrast ratio, "
+        "success criteria 1.4.3 (contrast, minimum) and 1.4.11 (non-text contrast).",
+    ),
+    bad="""
+        import matplotlib
+        matplotlib.use("Agg")
+        import matplotlib.pyplot as plt
+        fig, ax = plt.subplots()
+        ax.plot([0, 1, 2], [1.0, 1.5, 1.2], color="#222222")
+        ax.set_title("Mean leaf area by week", color="#bbbbbb")
+        fig.savefig("leaves.png")
+    """,
+    good="""
+        import matplotlib
+        matplotlib.use("Agg")
+        import matplotlib.pyplot as plt
+        fig, ax = plt.subplots()
+        ax.plot([0, 1, 2], [1.0, 1.5, 1.2], color="#222222")
+        ax.set_title("Mean leaf area by week", color="#333333")
+        fig.savefig("leaves.png")
+    """,
+)
+def low_contrast(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
+    """Text or data marks whose contrast with their background is below the WCAG 2.1 ratios."""
+    for ax in figure.axes:
+        yield from _text_hits(ax, figure, knobs)
+        yield from _mark_hits(ax, figure, knobs)
+
+
+def _text_hits(ax: Axes, figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
+    # group texts that share role, colours and size class: ten pale tick labels are one finding
+    groups: dict[tuple[str, str, str, bool], list[tuple[Text, float]]] = {}
+    for text in ax.texts:
+        if not text.text.strip() or np.isnan(np.asarray(text.color, float)).any() or text.color[3] <= 0.0:
+            continue
+        bg = _text_background(text, ax, figure)
+        fg = _opaque(text.color, bg)
+        ratio = float(cs.contrast_ratio(fg, bg))
+        large = is_large_text(text, knobs["large_size"], knobs["large_bold_size"])
+        limit = knobs["large_text_ratio"] if large else knobs["text_ratio"]
+        if ratio < limit:
+            groups.setdefault((text.role, cs.to_hex(fg), cs.to_hex(bg), large), []).append((text, ratio))
+    for (role, fg_hex, bg_hex, large), items in groups.items():
+        limit = knobs["large_text_ratio"] if large else knobs["text_ratio"]
+        size = "large" if large else "normal"
+        ratio = min(r for _, r in items)
+        quoted = ", ".join(f"'{t.text.strip()[:30]}'" for t, _ in items[:3]) + (", ..." if len(items) > 3 else "")
+        what = f"{role} text {quoted}" if len(items) == 1 else f"{len(items)} {role} texts ({quoted})"
+        yield Hit(message=f"{what} in {fg_hex} on {bg_hex} has contrast {_floor2(ratio)}:1, below {limit:g}:1 "
+                          f"for {size} text",
+                  source=items[0][0].source, axes=ax.index, key=f"text:{role}:{fg_hex}:{bg_hex}")
+
+
+def _mark_hits(ax: Axes, figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
+    if ax.is_colorbar:
+        return
+    bg = axes_background(ax, figure)
+    limit = float(knobs["mark_ratio"])
+
+    def ratios(colors: np.ndarray) -> np.ndarray:
+        rgba = cs.as_rgba(colors)
+        seen = cs.blend_over(np.nan_to_num(rgba), bg)
+        out = cs.contrast_ratio(seen, bg)
+        # a transparent or unreadable colour draws nothing, so it cannot supply contrast
+        return np.where(np.isnan(rgba).any(axis=1) | (np.nan_to_num(rgba[:, 3]) <= 0.0), 1.0, out)
+
+    def best(faces: np.ndarray, edges: np.ndarray) -> np.ndarray:
+        f = ratios(faces)
+        e = ratios(edges)
+        if e.size in (1, f.size) and f.size:
+            return np.maximum(f, e)
+        return f
+
+    marks: list[tuple[str, str, np.ndarray, np.ndarray, Source | None]] = []
+    for ln in ax.lines:
+        if ln.role == "data" and ln.linestyle not in ("", " ", "None", "none"):
+            c = np.asarray([ln.color], float)
+            marks.append(("line", _public(ln.label), ratios(c), c, ln.source))
+    for ps in ax.points:
+        if ps.colormap is None and np.asarray(ps.facecolors).size + np.asarray(ps.edgecolors).size:
+            faces = ps.facecolors if np.asarray(ps.facecolors).size else ps.edgecolors
+            marks.append(("markers", _public(ps.label), best(ps.facecolors, ps.edgecolors),
+                          _visible_colors(faces, ps.edgecolors), ps.source))
+    for bs in ax.bars:
+        if np.asarray(bs.facecolors).size:
+            marks.append(("bars", _public(bs.label), best(bs.facecolors, bs.edgecolors),
+                          _visible_colors(bs.facecolors, bs.edgecolors), bs.source))
+    bg_hex = cs.to_hex(bg)
+    for what, label, r, colors, source in marks:
+        if r.size == 0:
+            continue
+        low = r < limit
+        if not low.any():
+            continue
+        name = f"{what} of '{label}'" if label else what
+        worst = int(np.argmin(r))
+        rgba = cs.as_rgba(colors)
+        shown = cs.to_hex(cs.blend_over(np.nan_to_num(rgba[min(worst, rgba.shape[0] - 1)]), bg)[0]) \
+            if rgba.shape[0] else "?"
+        if r.size == 1 or low.all() and np.ptp(r) == 0:
+            verb = "has" if what == "line" else "have"
+            msg = f"{name} in {shown} on {bg_hex} {verb} contrast {_floor2(float(r[worst]))}:1, below {limit:g}:1"
+        else:
+            share = f"{int(low.sum())} of {r.size} ({100.0 * low.sum() / r.size:.0f}%)"
+            msg = (f"{share} {name} have contrast below {limit:g}:1 on {bg_hex} "
+                   f"(lowest {_floor2(float(r[worst]))}:1, {shown})")
+        yield Hit(message=msg, source=source, axes=ax.index, severity="warning", key=f"mark:{what}:{label}:{shown}")
+
+
+RULES = (colormap_not_uniform, colours_confusable_cvd, colours_confusable_gray, low_contrast)
