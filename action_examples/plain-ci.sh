@@ -1,0 +1,18 @@
+#!/bin/sh
+# Any CI system (or a data editor's laptop): install figproof, check, keep the report folder.
+# Exit status is figproof's: 0 passed, 1 thresholds crossed, 2 usage or configuration error.
+set -eu
+
+python -m pip install figproof
+
+status=0
+figproof check \
+  --json figproof-report/figproof.json \
+  --markdown figproof-report/summary.md \
+  --images figproof-report/images || status=$?
+
+# Show the summary in the job log; the folder holds the JSON and the annotated images.
+if [ -f figproof-report/summary.md ]; then
+  cat figproof-report/summary.md
+fi
+exit "$status"

@@ -1,0 +1,162 @@
+"""Sharding a big repo over CI jobs: pick a stable share of the scripts, merge the JSON reports.
+
+A script's shard depends on its path alone (a hash), not on which other
+scripts exist, so adding a script never reshuffles the others: each CI job
+keeps checking the same scripts and its result cache stays warm.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import re
+from collections.abc import Sequence
+from typing import Any
+
+from figproof.findings import SEVERITIES
+
+REPORT_SCHEMA = 1
+_SPEC = re.compile(r"^\s*(\d+)\s*/\s*(\d+)\s*$")
+_COUNT_KEYS = {"error": "errors", "warning": "warnings", "note": "notes"}
+
+
+class ShardError(ValueError):
+    """A bad ``--shard`` spec or reports that cannot be merged; the message is one line."""
+
+
+def parse_shard(spec: str) -> tuple[int, int]:
+    """Parse ``"K/N"`` (1-based) into ``(K, N)``; raise :class:`ShardError` naming what is wrong."""
+    m = _SPEC.match(spec or "")
+    if not m:
+        raise ShardError(f"--shard {spec!r}: expected K/N with whole numbers, e.g. 2/4")
+    k, n = int(m.group(1)), int(m.group(2))
+    if n < 1:
+        raise ShardError(f"--shard {spec!r}: N must be at least 1 (got {n})")
+    if not 1 <= k <= n:
+        raise ShardError(f"--shard {spec!r}: K must be between 1 and N={n} (got {k})")
+    return k, n
+
+
+def shard_of(path: str, n: int) -> int:
+    """The 1-based shard of ``path`` among ``n`` (SHA-256 of the POSIX path, so stable everywhere)."""
+    digest = hashlib.sha256(path.replace("\\", "/").encode("utf-8")).digest()
+    return int.from_bytes(digest[:8], "big") % n + 1
+
+
+def select_shard(scripts: Sequence[str], spec: str) -> list[str]:
+    """The scripts of shard ``spec`` (``"K/N"``), in their given order.
+
+    Every script lands in exactly one of the N shards; shares are even on average
+    (a hash, not a round robin, so that they do not depend on the other paths).
+    """
+    k, n = parse_shard(spec)
+    return [s for s in scripts if shard_of(s, n) == k]
+
+
+# --------------------------------------------------------------------------
+# merging JSON reports
+# --------------------------------------------------------------------------
+
+
+def _load(text: str, n: int) -> dict[str, Any]:
+    try:
+        data = json.loads(text)
+    except json.JSONDecodeError as exc:
+        raise ShardError(f"report {n}: not valid JSON (line {exc.lineno}, column {exc.colno}: {exc.msg})") from None
+    if not isinstance(data, dict):
+        raise ShardError(f"report {n}: expected a figproof JSON report (an object)")
+    if data.get("schema") != REPORT_SCHEMA:
+        raise ShardError(f"report {n}: report schema {data.get('schema')!r}, this figproof merges schema {REPORT_SCHEMA}")
+    for key, kind in (("scripts", list), ("findings", list), ("summary", dict)):
+        if not isinstance(data.get(key), kind):
+            raise ShardError(f"report {n}: '{key}' must be a {kind.__name__}")
+    if not isinstance(data["summary"].get("passed"), bool):
+        raise ShardError(f"report {n}: 'summary.passed' must be true or false")
+    return data
+
+
+def _same(reports: list[dict[str, Any]], key: str) -> Any:
+    values = [r.get(key) for r in reports]
+    for n, v in enumerate(values[1:], start=2):
+        if v != values[0]:
+            raise ShardError(f"report {n}: '{key}' is {v!r} but report 1 has {values[0]!r}; merge reports of one check only")
+    return values[0]
+
+
+def _finding_order(f: Any) -> tuple[str, int, str, str]:
+    if not isinstance(f, dict):
+        return ("", 0, "", "")
+    line = f.get("line")
+    return (str(f.get("path", "")), line if isinstance(line, int) else 0, str(f.get("rule", "")), str(f.get("message", "")))
+
+
+def _figures(scripts: list[Any], reports: list[dict[str, Any]]) -> int:
+    if scripts and all(isinstance(s, dict) and isinstance(s.get("figures"), list) for s in scripts):
+        return sum(len(s["figures"]) for s in scripts)
+    # Reports that do not list figures per script: trust each shard's own count.
+    return sum(r["summary"].get("figures", 0) for r in reports if isinstance(r["summary"].get("figures"), int))
+
+
+def merge_reports(json_texts: Sequence[str]) -> dict[str, Any]:
+    """Combine JSON reports (schema 1) of the shards of one check into one report with one verdict.
+
+    Scripts and findings are concatenated (findings re-sorted by path, line, rule); summary counts
+    are recomputed from them; ``passed`` is true only if every shard passed.  Reports must share
+    schema, tool, root and any other top-level setting; a script may appear in one report only.
+
+    Raises
+    ------
+    ShardError
+        With a one-line message naming the report (1-based) and the fault.
+    """
+    if not json_texts:
+        raise ShardError("nothing to merge: give the JSON reports of the shards")
+    reports = [_load(t, n) for n, t in enumerate(json_texts, start=1)]
+    merged: dict[str, Any] = {"schema": REPORT_SCHEMA}
+    for key in ("tool", "root"):
+        if any(key in r for r in reports):
+            merged[key] = _same(reports, key)
+
+    scripts: list[Any] = []
+    owner: dict[str, int] = {}
+    for n, r in enumerate(reports, start=1):
+        for s in r["scripts"]:
+            path = s.get("path") if isinstance(s, dict) else None
+            if isinstance(path, str):
+                if path in owner:
+                    raise ShardError(f"report {n}: script {path!r} is also in report {owner[path]}; shards overlap")
+                owner[path] = n
+            scripts.append(s)
+    scripts.sort(key=lambda s: str(s.get("path", "")) if isinstance(s, dict) else "")
+    findings = sorted((f for r in reports for f in r["findings"]), key=_finding_order)
+
+    # Other top-level keys (e.g. a fail-on setting) must agree, except lists, which are joined.
+    for key in sorted({k for r in reports for k in r} - {"schema", "tool", "root", "scripts", "findings", "summary"}):
+        values = [r[key] for r in reports if key in r]
+        if all(isinstance(v, list) for v in values):
+            joined: list[Any] = []
+            for v in values:
+                joined.extend(x for x in v if x not in joined)
+            merged[key] = joined
+        else:
+            merged[key] = _same([r for r in reports if key in r], key)
+
+    summary: dict[str, Any] = {
+        "scripts": len(scripts),
+        "figures": _figures(scripts, reports),
+        **{_COUNT_KEYS[sev]: 0 for sev in SEVERITIES},
+    }
+    accepted = 0
+    for f in findings:
+        if isinstance(f, dict) and f.get("accepted"):
+            accepted += 1
+        elif isinstance(f, dict) and f.get("severity") in _COUNT_KEYS:
+            summary[_COUNT_KEYS[f["severity"]]] += 1
+    if accepted or any("accepted" in r["summary"] for r in reports):
+        summary["accepted"] = accepted
+    summary["passed"] = all(r["summary"]["passed"] for r in reports)
+    merged.update(scripts=scripts, findings=findings, summary=summary)
+    return merged
+
+
+__all__ = ["REPORT_SCHEMA", "ShardError", "merge_reports", "parse_shard", "select_shard", "shard_of"]
