@@ -1,0 +1,364 @@
+"""Visibility rules: data markers a reader cannot see.
+
+Everything here works in display pixels of the rendered figure, where
+overlap is what the eye gets.  A marker of area ``s`` points² has a radius of
+``0.5 * sqrt(s)`` points, and a point is 1/72 inch, so at ``dpi`` pixels per
+inch the radius is ``0.5 * sqrt(s) * dpi / 72`` pixels.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterator
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.spatial import cKDTree
+
+from figproof.colour_science import blend_over, delta_e
+from figproof.findings import Hit
+from figproof.model import Axes, FigureModel, PointSet
+from figproof.rules.base import Knob, Knobs, rule
+
+HIDDEN_WARNING = 0.25
+HIDDEN_ERROR = 0.5
+DUPLICATE_ERROR = 0.10
+DUPLICATE_PX = 0.5
+COVERED_ERROR = 0.05
+OPAQUE_ALPHA = 0.9
+FAINT_DELTA_E = 5.0
+GRID_ABOVE = 2e5
+
+_DEFAULT_DPI = 100.0  # matplotlib's rcParams figure.dpi default
+_DEFAULT_SIZE = 36.0  # matplotlib's rcParams lines.markersize (6 pt) squared
+_LEGEND_KINDS = ("legend", "legend-entry")
+
+
+def marker_radius_px(sizes: np.ndarray, dpi: float) -> np.ndarray:
+    """Display-pixel radius of markers of area ``sizes`` (points²) at ``dpi``.
+
+    Parameters
+    ----------
+    sizes
+        Marker areas in points², as ``scatter(s=...)`` takes them.
+    dpi
+        Pixels per inch of the rendering.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``0.5 * sqrt(s) * dpi / 72``; invalid sizes give radius 0.
+    """
+    s = np.asarray(sizes, dtype=float)
+    s = np.where(np.isfinite(s) & (s > 0), s, 0.0)
+    return 0.5 * np.sqrt(s) * dpi / 72.0
+
+
+@dataclass(frozen=True, slots=True)
+class Overlap:
+    """Per-point overlap flags of one point set."""
+
+    hidden: np.ndarray  # nearest neighbour closer than the larger of the two radii
+    duplicate: np.ndarray  # nearest neighbour closer than the duplicate distance
+    exact: bool  # True: nearest neighbours from a k-d tree; False: grid-occupancy estimate
+
+
+def overlap(px: np.ndarray, py: np.ndarray, radius: np.ndarray, *, duplicate_px: float = DUPLICATE_PX,
+            grid_above: float = GRID_ABOVE) -> Overlap:
+    """Which markers are hidden by, or duplicate, their nearest neighbour.
+
+    Up to ``grid_above`` points this is exact (scipy ``cKDTree.query`` with
+    k=2).  Above it, a grid-occupancy count: a point counts as hidden when
+    another point shares its grid cell, with cells of side ``sqrt(pi) * r``
+    so that a cell has the area of the disc of radius ``r`` (the median
+    radius); for points scattered at random both tests then flag the same
+    expected share, ``1 - exp(-density * pi * r**2)``.
+    """
+    n = px.size
+    none = np.zeros(n, dtype=bool)
+    if n < 2:
+        return Overlap(none, none.copy(), True)
+    if n <= grid_above:
+        xy = np.column_stack([px, py])
+        dist, idx = cKDTree(xy).query(xy, k=2)
+        near, other = dist[:, 1], idx[:, 1]
+        return Overlap(near < np.maximum(radius, radius[other]), near < duplicate_px, True)
+    r = float(np.median(radius))
+    hidden = _shares_cell(px, py, math.sqrt(math.pi) * r) if r > 0 else none
+    duplicate = _shares_cell(px, py, math.sqrt(math.pi) * duplicate_px)
+    return Overlap(hidden, duplicate, False)
+
+
+def _shares_cell(px: np.ndarray, py: np.ndarray, side: float) -> np.ndarray:
+    """True for points whose grid cell of the given side holds at least one other point."""
+    cx = np.floor((px - px.min()) / side).astype(np.int64)
+    cy = np.floor((py - py.min()) / side).astype(np.int64)
+    key = cx * (int(cy.max()) + 1) + cy
+    _, inverse, counts = np.unique(key, return_inverse=True, return_counts=True)
+    return counts[inverse.ravel()] >= 2
+
+
+def _per_point(values: np.ndarray, n: int, width: int) -> np.ndarray | None:
+    """Broadcast a per-point property cyclically, as matplotlib collections do; None when absent."""
+    arr = np.asarray(values, dtype=float)
+    if arr.size == 0 or arr.size % width:
+        return None
+    arr = arr.reshape(-1, width) if width > 1 else arr.ravel()
+    if len(arr) == n:
+        return arr
+    return np.resize(arr, (n, width) if width > 1 else n)
+
+
+def _background(ax: Axes, figure: FigureModel) -> np.ndarray:
+    """The opaque colour markers are drawn over: the axes face over the figure face over white paper."""
+    fig_rgb = blend_over(np.array([figure.facecolor], dtype=float))[0]
+    rgb = blend_over(np.array([ax.facecolor], dtype=float), np.append(fig_rgb, 1.0))[0]
+    return np.append(rgb, 1.0)
+
+
+def _drawn_after(z: float, order: int | None, pz: float, porder: int | None) -> bool:
+    """Does an artist with z-order ``z`` / draw order ``order`` paint over one with ``pz`` / ``porder``?"""
+    if z != pz:
+        return z > pz
+    # equal z-orders are drawn in the order the artists were added; unknown order: assume not over
+    return order is not None and porder is not None and order > porder
+
+
+def _covered(px: np.ndarray, py: np.ndarray, radius: np.ndarray, boxes: list[tuple[float, float, float, float]]
+             ) -> np.ndarray:
+    """Points whose whole marker lies inside one of the display boxes (x0, y0, x1, y1)."""
+    out = np.zeros(px.size, dtype=bool)
+    if not boxes or px.size == 0:
+        return out
+    order = np.argsort(px, kind="stable")
+    sx = px[order]
+    for x0, y0, x1, y1 in boxes:
+        x0, x1 = sorted((x0, x1))
+        y0, y1 = sorted((y0, y1))
+        if not (x1 > x0 and y1 > y0):
+            continue
+        # candidates by x through the sorted order, then the exact whole-marker test
+        cand = order[np.searchsorted(sx, x0, side="left"):np.searchsorted(sx, x1, side="right")]
+        if cand.size == 0:
+            continue
+        r = radius[cand]
+        inside = ((px[cand] - r >= x0) & (px[cand] + r <= x1) & (py[cand] - r >= y0) & (py[cand] + r <= y1))
+        out[cand[inside]] = True
+    return out
+
+
+def _opaque_boxes(ax: Axes, ps: PointSet, opaque: float) -> list[tuple[float, float, float, float]]:
+    """Display boxes of bars and shapes with a nearly opaque face drawn after the point set."""
+    boxes: list[tuple[float, float, float, float]] = []
+    for b in ax.bars:
+        if not _drawn_after(b.zorder, b.draw_order, ps.zorder, ps.draw_order):
+            continue
+        disp = np.asarray(b.display_boxes, dtype=float).reshape(-1, 4) if b.display_boxes.size else np.zeros((0, 4))
+        face = _per_point(b.facecolors, len(disp), 4)
+        for k, box in enumerate(disp):
+            if face is not None and np.isfinite(face[k, 3]) and face[k, 3] >= opaque and np.isfinite(box).all():
+                boxes.append((float(box[0]), float(box[1]), float(box[2]), float(box[3])))
+    for p in ax.patches:
+        if p.kind in _LEGEND_KINDS or not _drawn_after(p.zorder, p.draw_order, ps.zorder, ps.draw_order):
+            continue
+        if p.facecolor[3] >= opaque and all(math.isfinite(v) for v in p.display_box):
+            boxes.append(tuple(float(v) for v in p.display_box))  # type: ignore[arg-type]
+    return boxes
+
+
+def _color_scores(colors: np.ndarray, background: np.ndarray) -> np.ndarray:
+    """CAM02-UCS difference between each RGBA colour blended over the background and the background."""
+    c = np.nan_to_num(np.asarray(colors, dtype=float).reshape(-1, 4), nan=0.0)
+    # a cheap bound first: a colour that moves some channel by >= 0.3 is plainly visible
+    step = c[:, 3] * np.abs(c[:, :3] - background[:3]).max(axis=1)
+    score = np.full(len(c), np.inf)
+    todo = step < 0.3
+    if todo.any():
+        uniq, inv = np.unique(c[todo], axis=0, return_inverse=True)
+        shown = blend_over(uniq, background)
+        score[todo] = delta_e(shown, np.tile(background[:3], (len(uniq), 1)))[inv.ravel()]
+    return score
+
+
+def _faint(ps: PointSet, keep: np.ndarray, background: np.ndarray, limit: float) -> tuple[np.ndarray, float]:
+    """Per drawn point: is the marker (face and edge) nearly invisible over the background? Also its lowest alpha."""
+    where = np.flatnonzero(keep)
+    best = np.zeros(where.size)
+    alpha = np.zeros(where.size)
+    seen_any = False
+    for colors in (ps.facecolors, ps.edgecolors):
+        rows = np.asarray(colors, dtype=float)
+        if rows.size == 0 or rows.size % 4:
+            continue
+        rows = rows.reshape(-1, 4)
+        seen_any = True
+        # matplotlib cycles a short colour list over the points: score the rows once, then index
+        pick = where % len(rows)
+        best = np.maximum(best, _color_scores(rows, background)[pick])
+        alpha = np.maximum(alpha, np.nan_to_num(rows[:, 3], nan=0.0)[pick])
+    if not seen_any:
+        return np.zeros(where.size, dtype=bool), 1.0
+    faint = best < limit
+    return faint, float(alpha[faint].min()) if faint.any() else 1.0
+
+
+def _counted(part: int, whole: int) -> str:
+    share = 100.0 * part / whole if whole else 0.0
+    return f"{part} of {whole} {'marker' if whole == 1 else 'markers'} ({share:.0f}%)"
+
+
+@rule(
+    "points-hidden",
+    severity="warning",
+    confidence="likely",
+    why="""
+        A dot plot or scatter plot promises to show every observation. Markers drawn on top of each other
+        (large markers, many points, values rounded to a few levels), markers painted over by bars or the
+        legend drawn later, and markers so transparent or pale that they vanish into the background all
+        break that promise without any visible sign: the reader counts fewer points, misjudges where most of
+        them lie, and cannot see outliers.
+    """,
+    fix="""
+        For overlap: use smaller markers (`s=`), spread tied values with jitter or a swarm layout
+        (seaborn's `stripplot`/`swarmplot`), or, for very many points, show density instead (hexbin, 2-D
+        histogram) or a transparent marker with an opaque outline. For points under bars: draw the points
+        after the bars or with a higher `zorder`, or drop the bars. For points under the legend: move it
+        (`loc=`, `bbox_to_anchor=` outside the axes). For faint markers: raise `alpha` or darken the colour.
+    """,
+    sources=(
+        "matplotlib documentation, Axes.scatter: s is the marker size in points**2; one point is 1/72 inch "
+        "(matplotlib 'Transformations' tutorial: fig.dpi pixels per inch).",
+        "scipy documentation, scipy.spatial.cKDTree.query (k nearest neighbours).",
+        "matplotlib documentation, Artist.set_zorder: artists with higher zorder are drawn on top; equal "
+        "zorders are drawn in the order the artists were added.",
+        "Luo, Cui & Li (2006), CAM02-UCS: colour difference of a marker blended over the background.",
+        "Common practice: one observation per visible marker; 25% / 50% hidden and 10% duplicates as "
+        "warning / error levels are this project's choice.",
+    ),
+    knobs=(
+        Knob(name="hidden_warning", default=HIDDEN_WARNING, minimum=0, maximum=1,
+             help="Share of overlapped markers in one point set that makes a warning."),
+        Knob(name="hidden_error", default=HIDDEN_ERROR, minimum=0, maximum=1,
+             help="Share of overlapped markers in one point set that makes an error."),
+        Knob(name="duplicate_error", default=DUPLICATE_ERROR, minimum=0, maximum=1,
+             help="Share of markers within duplicate_px of another that makes an error."),
+        Knob(name="duplicate_px", default=DUPLICATE_PX, minimum=0,
+             help="Distance in display pixels below which two markers are duplicates."),
+        Knob(name="covered_error", default=COVERED_ERROR, minimum=0, maximum=1,
+             help="Share of markers under opaque shapes or the legend that makes an error (any makes a warning)."),
+        Knob(name="opaque_alpha", default=OPAQUE_ALPHA, minimum=0, maximum=1,
+             help="Face alpha at or above which a bar or shape drawn later hides what is beneath it."),
+        Knob(name="faint_delta_e", default=FAINT_DELTA_E, minimum=0,
+             help="CAM02-UCS colour difference from the background below which a marker is nearly invisible."),
+        Knob(name="grid_above", default=GRID_ABOVE, minimum=2,
+             help="Point count above which overlap is estimated on a grid instead of by nearest neighbours."),
+    ),
+    bad="""
+        import matplotlib.pyplot as plt
+        import numpy as np
+        # leaf counts of 1500 rosettes against days after sowing, both recorded as whole numbers
+        rng = np.random.default_rng(7)
+        days = rng.integers(10, 20, size=1500)
+        leaves = days // 2 + rng.integers(0, 4, size=1500)
+        fig, ax = plt.subplots()
+        ax.scatter(days, leaves, s=40)
+        ax.set_xlabel("days after sowing")
+        ax.set_ylabel("leaves")
+        fig.savefig("leaves.png")
+    """,
+    good="""
+        import matplotlib.pyplot as plt
+        import numpy as np
+        # leaf area (cm²) of 60 rosettes against their fresh weight (mg)
+        rng = np.random.default_rng(7)
+        weight = rng.uniform(20.0, 120.0, size=60)
+        area = 0.04 * weight + rng.normal(0.0, 0.4, size=60)
+        fig, ax = plt.subplots()
+        ax.scatter(weight, area, s=12)
+        ax.set_xlabel("fresh weight (mg)")
+        ax.set_ylabel("leaf area (cm²)")
+        fig.savefig("leaf_area.png")
+    """,
+)
+def points_hidden(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
+    """Data markers that cannot be seen: overplotted, under opaque shapes or the legend, or nearly invisible.
+
+    Per point set, in display pixels, counting only markers inside the axes
+    box (markers outside it are axis-clips-data's business).  Three reasons,
+    each its own finding: overlap (nearest neighbour closer than the larger
+    of the two marker radii; duplicates closer than ``duplicate_px``),
+    covered (the whole marker inside a bar or shape with face alpha >=
+    ``opaque_alpha`` drawn later, or inside the legend box), and faint (the
+    marker blended over the background differs from it by less than
+    ``faint_delta_e``, counted only where no neighbour overlaps to build up
+    density).  Polar, 3-D and colour-bar axes are skipped.
+    """
+    k = {name: float(knobs.get(name, default)) for name, default in (
+        ("hidden_warning", HIDDEN_WARNING), ("hidden_error", HIDDEN_ERROR), ("duplicate_error", DUPLICATE_ERROR),
+        ("duplicate_px", DUPLICATE_PX), ("covered_error", COVERED_ERROR), ("opaque_alpha", OPAQUE_ALPHA),
+        ("faint_delta_e", FAINT_DELTA_E), ("grid_above", GRID_ABOVE))}
+    dpi = float(figure.dpi) if math.isfinite(figure.dpi) and figure.dpi > 0 else _DEFAULT_DPI
+    for ax in figure.axes:
+        if ax.projection != "rectilinear" or ax.is_colorbar:
+            continue
+        x0, y0, x1, y1 = ax.display_box
+        x0, x1 = sorted((x0, x1))
+        y0, y1 = sorted((y0, y1))
+        background = _background(ax, figure)
+        for i, ps in enumerate(ax.points):
+            px = np.asarray(ps.px, dtype=float).ravel()
+            py = np.asarray(ps.py, dtype=float).ravel()
+            n = min(px.size, py.size)
+            px, py = px[:n], py[:n]
+            slack = 0.5  # half a pixel of rounding at the axes edge
+            keep = (np.isfinite(px) & np.isfinite(py) & (px >= x0 - slack) & (px <= x1 + slack)
+                    & (py >= y0 - slack) & (py <= y1 + slack))
+            m = int(keep.sum())
+            if m == 0:
+                continue
+            sizes = _per_point(ps.sizes, n, 1)
+            radius = marker_radius_px(sizes[keep] if sizes is not None else np.full(m, _DEFAULT_SIZE), dpi)
+            kx, ky = px[keep], py[keep]
+
+            ov = overlap(kx, ky, radius, duplicate_px=k["duplicate_px"], grid_above=k["grid_above"])
+            hidden, dups = int(ov.hidden.sum()), int(ov.duplicate.sum())
+            severity: str | None = None
+            if hidden >= k["hidden_error"] * m or (dups and dups >= k["duplicate_error"] * m):
+                severity = "error"
+            elif hidden and hidden >= k["hidden_warning"] * m:
+                severity = "warning"
+            if severity is not None:
+                how = "nearest-neighbour" if ov.exact else "grid-occupancy estimate"
+                dup_text = f", {dups} of them duplicates within {k['duplicate_px']:g} px" if dups else ""
+                yield Hit(message=(f"{_counted(hidden, m)} overlap a neighbour closer than the marker radius "
+                                   f"({float(np.median(radius)):.1f} px){dup_text} ({how})"),
+                          source=ps.source, axes=ax.index, severity="error" if severity == "error" else None,
+                          confidence="certain" if ov.exact else "likely", key=f"points:{i}:overlap")
+
+            under_shapes = _covered(kx, ky, radius, _opaque_boxes(ax, ps, k["opaque_alpha"]))
+            legend = (_covered(kx, ky, radius, [ax.legend_box]) if ax.legend_box is not None
+                      else np.zeros(m, dtype=bool))
+            covered = under_shapes | legend
+            c = int(covered.sum())
+            if c:
+                reasons = []
+                if under_shapes.any():
+                    reasons.append(f"{int(under_shapes.sum())} under opaque bars or shapes drawn later")
+                if legend.any():
+                    reasons.append(f"{int(legend.sum())} under the legend")
+                yield Hit(message=f"{_counted(c, m)} are covered ({' and '.join(reasons)})",
+                          source=ps.source, axes=ax.index, severity="error" if c >= k["covered_error"] * m else None,
+                          confidence="certain", key=f"points:{i}:covered")
+
+            faint, lowest_alpha = _faint(ps, keep, background, k["faint_delta_e"])
+            # overlapping faint markers build up density; an isolated faint marker simply vanishes
+            faint &= ~ov.hidden
+            f = int(faint.sum())
+            if f:
+                yield Hit(message=(f"{_counted(f, m)} are nearly invisible: blended over the background "
+                                   f"(lowest opacity {lowest_alpha:.2g}) they differ from it by less than "
+                                   f"ΔE' {k['faint_delta_e']:g}"),
+                          source=ps.source, axes=ax.index, confidence="certain", key=f"points:{i}:faint")
+
+
+RULES = (points_hidden,)
