@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from builders import (
+from tests.builders import (
     Axis,
     ErrorBars,
     Line,

@@ -2,11 +2,12 @@
 
 from __future__ import annotations
 
+import dataclasses
 import math
 
 import numpy as np
 import pytest
-from builders import Axis, axes_with, bars_px, figure, patch, points_px
+from tests.builders import Axis, axes_with, bars_px, figure, patch, points_px
 
 from figproof.findings import Hit
 from figproof.model import Axes
@@ -284,3 +285,35 @@ def test_rule_record_is_complete() -> None:
     assert {k.name for k in points_hidden.knobs} >= {"hidden_warning", "hidden_error", "duplicate_error",
                                                      "covered_error", "grid_above"}
     assert "scatter" in points_hidden.bad and "scatter" in points_hidden.good
+
+
+# --------------------------------------------------------------------------
+# common practice (issue 4): a seaborn-style strip plot is not "hidden"
+# --------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_a_default_strip_plot_of_30_per_group_with_median_lines_passes(seed: int) -> None:
+    # Common practice (no source): a strip plot with seaborn's defaults and 30 points per group is not hidden
+    # at the error level, and a jittered dot plot with a median line passes every rule here.  The defaults
+    # are read from seaborn 0.13's source: stripplot size=5 (s = size**2 = 25 points²) and jitter drawn
+    # uniformly within ±0.1 of the category spacing; figure 640x480 px at dpi 100 (matplotlib defaults).
+    from tests.builders import BOX, line, to_display
+
+    from figproof.rules.axes import axis_clips_data, axis_empty_span
+
+    rng = np.random.default_rng(seed)
+    groups = [rng.normal(mu, 2.0, 30) for mu in (10.0, 12.0, 11.0)]
+    x = np.concatenate([np.full(30, i) + rng.uniform(-0.1, 0.1, 30) for i in range(3)])
+    y = np.concatenate(groups)
+    pad = 0.05 * np.ptp(y)  # matplotlib's default axes.ymargin
+    xlim, ylim = (-0.5, 2.5), (float(y.min() - pad), float(y.max() + pad))
+    px, py = to_display(x, y, xlim, ylim)
+    dots = dataclasses.replace(points_px(px, py, size=25.0), x=x, y=y)
+    medians = [line([i - 0.3, i + 0.3], [np.median(g)] * 2, xlim=xlim, ylim=ylim) for i, g in enumerate(groups)]
+    ax = axes_with(Axis(lim=xlim), Axis(lim=ylim), box=BOX, points=[dots], lines=medians)
+    fig = figure(ax, dpi=100.0)
+    for r in (points_hidden, axis_clips_data, axis_empty_span):
+        found = list(r.check(fig, r.defaults()))
+        assert not [h for h in found if (h.severity or r.severity) == "error"], (r.id, found)
+    assert list(points_hidden.check(fig, points_hidden.defaults())) == []

@@ -11,9 +11,9 @@ from pathlib import Path
 
 import numpy as np
 
-sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # tests/ for builders
+sys.path.insert(0, str(Path(__file__).resolve().parents[2]))  # the repo root, for tests.builders
 
-from builders import Axis, axes_with, figure, points_px  # noqa: E402
+from tests.builders import Axis, axes_with, figure, points_px  # noqa: E402
 
 from figproof.rules.visibility import GRID_ABOVE, points_hidden  # noqa: E402
 
