@@ -14,7 +14,7 @@ import matplotlib
 import numpy as np
 import pytest
 
-from builders import axes, bars, figure, line, points, src
+from tests.builders import axes, bars, figure, line, points, src
 from figproof.findings import Hit
 from figproof.model import ColorMapping, Patch, Text
 from figproof.rules import colour

@@ -1,34 +1,14 @@
 """Colour rules: colour maps, colour pairs under colour-vision deficiency and in grayscale, contrast.
 
-Which colours "must be told apart" in one axes (the series of that axes):
-
-- each point set (scatter collection or markers of a line) that is not colour-mapped
-  (``PointSet.colormap is None``): its face colour, or its edge colour where the faces are
-  transparent (``'none'`` faces arrive as alpha 0); a point set with several colours per
-  point contributes each distinct colour as a category (seaborn ``hue=``, ``c=[list]``);
-- each line with ``role == "data"`` (error-bar, reference, box and violin lines are not series);
-- each bar set: its face colours (several when bars are coloured one by one), edge colour for
-  hollow bars;
-- each filled area (``Patch.kind`` ``"fill"`` or ``"polygon"``: fill_between, stackplot, violin
-  bodies, hand-drawn polygons);
-- each distinct colour of a colour map with few colours (``ColorMapping.n_colors`` at most
-  ``palette_max_colors``) drawn as an image or mesh, since such a map labels categories;
-  a map whose few colours are ordered in lightness is a stepped continuous map and is judged
-  as a map instead.  Scatter ``c=`` maps are skipped here: the point set already gives the
-  colours actually used.
-
-Legend entries enter through the artists they label (their labels name the colours in
-messages).  Colours are blended over the axes background before any measurement, identical
-drawn colours count once, and two series drawn in the same base colour (say a line and its
-translucent band) or with the same label are one series drawn twice, never a clashing pair.
+The colours each rule measures are collected in :mod:`figproof.rules.colour_series` (its module
+docstring says which marks count as series); colour maps are judged in
+:mod:`figproof.rules.colormaps`; every formula lives in :mod:`figproof.colour_science`.
 """
 
 from __future__ import annotations
 
-import functools
 import hashlib
 from collections.abc import Iterator
-from dataclasses import dataclass
 
 import numpy as np
 
@@ -36,311 +16,23 @@ from figproof import colour_science as cs
 from figproof.findings import Hit
 from figproof.model import Axes, ColorMapping, FigureModel, Source, Text
 from figproof.rules.base import Knob, Knobs, rule
-
-# --------------------------------------------------------------------------
-# backgrounds and series
-# --------------------------------------------------------------------------
-
-
-def _opaque(rgba: tuple[float, ...] | None, under: np.ndarray) -> np.ndarray:
-    """An RGBA colour as the opaque sRGB colour it shows over ``under``."""
-    if rgba is None:
-        return under
-    out = cs.blend_over(rgba, under)
-    return under if np.isnan(out).any() else out[0]
-
-
-def figure_background(figure: FigureModel) -> np.ndarray:
-    """The figure's face colour as seen (a transparent figure is shown on white)."""
-    return _opaque(figure.facecolor, np.array(cs.WHITE))
-
-
-def axes_background(ax: Axes, figure: FigureModel) -> np.ndarray:
-    """The axes' face colour as seen over the figure background."""
-    return _opaque(ax.facecolor, figure_background(figure))
-
-
-def _public(label: str) -> str:
-    # matplotlib marks artists that stay out of legends with a leading underscore
-    return "" if label.startswith("_") else label
-
-
-@dataclass(frozen=True, slots=True)
-class Series:
-    """One colour a reader must tell apart from the others in its axes."""
-
-    rgba: tuple[float, float, float, float]
-    label: str
-    what: str  # line | points | bars | area | category
-    source: Source | None
-
-
-def _distinct_rows(colors: np.ndarray) -> np.ndarray:
-    """Unique RGBA rows in order of first appearance (colours equal to 8 bits count once)."""
-    arr = cs.as_rgba(colors)
-    arr = arr[~np.isnan(arr).any(axis=1)]
-    if arr.shape[0] == 0:
-        return arr
-    _, first = np.unique(np.round(arr * 255).astype(int), axis=0, return_index=True)
-    return arr[np.sort(first)]
-
-
-def _visible_colors(faces: np.ndarray, edges: np.ndarray) -> np.ndarray:
-    """Face colours, or edge colours where the faces are transparent ('none')."""
-    f = cs.as_rgba(faces)
-    e = cs.as_rgba(edges)
-    if f.shape[0] == 0:
-        return e
-    if e.shape[0] not in (1, f.shape[0]):
-        return f
-    e = np.broadcast_to(e, f.shape) if e.shape[0] else f
-    hollow = np.nan_to_num(f[:, 3]) <= 0.0
-    return np.where(hollow[:, None], e, f)
-
-
-def _is_palette(cm: ColorMapping, max_colors: float) -> bool:
-    return (not cm.is_rgb) and 1 < cm.n_colors <= max_colors
-
-
-def _ordered_in_lightness(rgb: np.ndarray) -> bool:
-    """True when the colours' J' steps all go the same way (a stepped continuous map)."""
-    if rgb.shape[0] < 2:
-        return True
-    steps = np.diff(cs.srgb_to_ucs(rgb)[:, 0])
-    return bool(np.all(steps > 0) or np.all(steps < 0))
-
-
-def palette_colors(cm: ColorMapping, max_colors: float) -> np.ndarray:
-    """The distinct colours of a few-colour map that labels categories (empty when it does not)."""
-    if not _is_palette(cm, max_colors):
-        return np.zeros((0, 4))
-    rows = _distinct_rows(np.asarray(cm.samples))
-    if rows.shape[0] < 2 or _ordered_in_lightness(rows[:, :3]):
-        return np.zeros((0, 4))
-    return rows
-
-
-def axes_series(ax: Axes, *, palette_max_colors: float, max_colors: float) -> list[Series]:
-    """The colours of ``ax`` that must be told apart, in drawing-list order (see the module doc)."""
-    found: list[Series] = []
-
-    def add(colors: np.ndarray, label: str, what: str, source: Source | None) -> None:
-        rows = _distinct_rows(colors)
-        rows = rows[rows[:, 3] > 0.0] if rows.shape[0] else rows
-        if rows.shape[0] > max_colors:
-            return  # so many colours encode a continuous variable, not categories
-        for k, row in enumerate(rows):
-            name = label if rows.shape[0] == 1 else (f"{label} {k + 1}" if label else "")
-            found.append(Series(tuple(float(v) for v in row), name, what, source))  # type: ignore[arg-type]
-
-    if ax.is_colorbar:
-        return found
-    for ps in ax.points:
-        if ps.colormap is not None:
-            continue
-        add(_visible_colors(ps.facecolors, ps.edgecolors), _public(ps.label), "points", ps.source)
-    for ln in ax.lines:
-        if ln.role == "data" and ln.linestyle not in ("", " ", "None", "none"):
-            add(np.asarray([ln.color], float), _public(ln.label), "line", ln.source)
-    for bs in ax.bars:
-        add(_visible_colors(bs.facecolors, bs.edgecolors), _public(bs.label), "bars", bs.source)
-    for patch in ax.patches:
-        if patch.kind in ("fill", "polygon"):
-            add(_visible_colors(np.asarray([patch.facecolor]), np.asarray([patch.edgecolor])),
-                _public(patch.label), "area", patch.source)
-    for cm in ax.colormaps:
-        if cm.kind != "scatter" and cm.kind != "colorbar":
-            add(palette_colors(cm, palette_max_colors), _public(cm.name), "category", cm.source)
-    return found
-
-
-def _name(s: Series, hex_: str) -> str:
-    return f"'{s.label}' ({hex_})" if s.label else f"{s.what} {hex_}"
-
-
-@dataclass(frozen=True, slots=True)
-class _Pairs:
-    """Series of one axes, blended, deduplicated, with the pairs worth comparing."""
-
-    axes: int
-    series: list[Series]
-    rgb: np.ndarray  # (n, 3) as seen
-    hexes: list[str]
-    pairs: list[tuple[int, int]]
-
-
-def _axes_pairs(figure: FigureModel, knobs: Knobs) -> list[_Pairs]:
-    out: list[_Pairs] = []
-    for ax in figure.axes:
-        series = axes_series(ax, palette_max_colors=knobs["palette_max_colors"], max_colors=knobs["max_colors"])
-        if len(series) < 2:
-            continue
-        bg = axes_background(ax, figure)
-        rgb = cs.blend_over(np.array([s.rgba for s in series]), bg)
-        keep: list[int] = []
-        seen: set[str] = set()
-        for i in range(len(series)):
-            h = cs.to_hex(rgb[i])
-            if h not in seen:
-                seen.add(h)
-                keep.append(i)
-        series = [series[i] for i in keep]
-        rgb = rgb[keep]
-        base = [cs.to_hex(s.rgba) for s in series]
-        pairs = [
-            (i, j)
-            for i in range(len(series))
-            for j in range(i + 1, len(series))
-            if base[i] != base[j] and not (series[i].label and series[i].label == series[j].label)
-        ]
-        if pairs:
-            out.append(_Pairs(ax.index, series, rgb, [cs.to_hex(c) for c in rgb], pairs))
-    return out
-
+from figproof.rules.colormaps import MapProblem, judge_cached, judge_colormap
+from figproof.rules.colour_series import (
+    Series,
+    axes_background,
+    axes_pairs,
+    axes_series,
+    figure_background,
+    opaque,
+    palette_colors,
+    public_label,
+    series_name,
+    visible_colors,
+)
 
 # --------------------------------------------------------------------------
 # colormap-not-uniform
 # --------------------------------------------------------------------------
-
-
-@dataclass(frozen=True, slots=True)
-class MapProblem:
-    """One defect of a colour map, as numbers; the rule turns it into a message."""
-
-    kind: str  # reversal | centre-chroma | ends | cyclic-shape | steps
-    shape: str  # sequential | diverging | cyclic
-    severity: str  # error | warning
-    value: float
-    limit: float
-    at: float = 0.0  # position in the map (0-1) where it happens
-    low: float = 0.0
-    high: float = 0.0
-
-
-def _drawdown(j: np.ndarray, rising: bool) -> tuple[float, int]:
-    """Largest move of ``j`` against the given direction, and where it ends."""
-    if j.size < 2:
-        return 0.0, 0
-    back = np.maximum.accumulate(j) - j if rising else j - np.minimum.accumulate(j)
-    k = int(np.argmax(back))
-    return float(back[k]), k
-
-
-@functools.lru_cache(maxsize=512)
-def _judge_cached(data: bytes, rows: int, params: tuple[float, ...]) -> tuple[MapProblem, ...]:
-    """Judge a colour map from its samples; cached on the sample bytes (pure: same input, same verdict)."""
-    samples = np.frombuffer(data, dtype=float).reshape(rows, -1)
-    return judge_colormap(samples, *params)
-
-
-def judge_colormap(
-    samples: np.ndarray,
-    reversal: float = 5.0,
-    centre_chroma: float = 20.0,
-    ends_difference: float = 15.0,
-    cyclic_ends: float = 5.0,
-    centre_offset: float = 0.2,
-    step_cv: float = 0.6,
-    blocks: float = 32.0,
-) -> tuple[MapProblem, ...]:
-    """Classify a colour map from its sampled colours and list its defects.
-
-    Parameters
-    ----------
-    samples
-        ``(n, 3)`` or ``(n, 4)`` sRGB1 samples evenly spaced over the map (alpha ignored).
-    reversal
-        Largest tolerated move of lightness J' against its direction.
-    centre_chroma
-        Chroma at a diverging map's centre from which the map counts as a rainbow.
-    ends_difference
-        Largest tolerated J' difference between a diverging map's two ends.
-    cyclic_ends
-        ΔE' below which the two ends count as equal (a cyclic map).
-    centre_offset
-        How far from the middle (as a fraction of the map) a diverging map's turning point may lie.
-    step_cv
-        Largest tolerated coefficient of variation of ΔE' over ``blocks`` equal blocks.
-
-    Returns
-    -------
-    tuple of MapProblem
-        Empty when the map is fine.
-    """
-    arr = np.asarray(samples, dtype=float)
-    if arr.ndim != 2 or arr.shape[1] < 3:
-        return ()
-    arr = arr[np.isfinite(arr[:, :3]).all(axis=1), :3]
-    if arr.shape[0] < 3:
-        return ()
-    ucs = cs.srgb_to_ucs(np.clip(arr, 0.0, 1.0))
-    j = ucs[:, 0]
-    n = j.size
-    pos = np.linspace(0.0, 1.0, n)
-    problems: list[MapProblem] = []
-
-    if float(cs.ucs_distance(ucs[0], ucs[-1])) < cyclic_ends:
-        shape = "cyclic"
-        # around a cycle a good map is V- or Λ-shaped in any phase: from its lightest
-        # sample J' must fall to the darkest one and then rise back
-        top = int(np.argmax(j))
-        ring = np.roll(j[:-1], -top)
-        bottom = int(np.argmin(ring))
-        fall, k1 = _drawdown(ring[: bottom + 1], rising=False)
-        rise, k2 = _drawdown(ring[bottom:], rising=True)
-        worst, k = (fall, k1) if fall >= rise else (rise, bottom + k2)
-        if worst > reversal:
-            problems.append(MapProblem("cyclic-shape", shape, "error", worst, reversal,
-                                       at=float(pos[(k + top) % (n - 1)]), low=float(j.min()), high=float(j.max())))
-    else:
-        ends_hi = max(j[0], j[-1])
-        ends_lo = min(j[0], j[-1])
-        centre: int | None = None
-        peak, trough = int(np.argmax(j)), int(np.argmin(j))
-        candidates = []
-        if j[peak] - ends_hi > reversal and 0 < peak < n - 1:
-            candidates.append((float(j[peak] - ends_hi), peak))
-        if ends_lo - j[trough] > reversal and 0 < trough < n - 1:
-            candidates.append((float(ends_lo - j[trough]), trough))
-        for _, idx in sorted(candidates, reverse=True):
-            if abs(pos[idx] - 0.5) <= centre_offset:
-                centre = idx
-                break
-        if centre is not None:
-            shape = "diverging"
-            rises_first = bool(j[centre] > ends_hi)
-            left, kl = _drawdown(j[: centre + 1], rising=rises_first)
-            right, kr = _drawdown(j[centre:], rising=not rises_first)
-            worst, k = (left, kl) if left >= right else (right, centre + kr)
-            if worst > reversal:
-                problems.append(MapProblem("reversal", shape, "error", worst, reversal, at=float(pos[k]),
-                                           low=float(j.min()), high=float(j.max())))
-            c = float(cs.chroma(ucs[centre]))
-            if c >= centre_chroma:
-                problems.append(MapProblem("centre-chroma", shape, "error", c, centre_chroma, at=float(pos[centre])))
-            gap = float(abs(j[0] - j[-1]))
-            if gap > ends_difference:
-                problems.append(MapProblem("ends", shape, "warning", gap, ends_difference, low=float(j[0]),
-                                           high=float(j[-1])))
-        else:
-            shape = "sequential"
-            worst, k = _drawdown(j, rising=bool(j[-1] >= j[0]))
-            if worst > reversal:
-                problems.append(MapProblem("reversal", shape, "error", worst, reversal, at=float(pos[k]),
-                                           low=float(j[0]), high=float(j[-1])))
-
-    # stepped maps repeat colours: measure evenness over their distinct steps only
-    steps = cs.ucs_distance(ucs[1:], ucs[:-1])
-    steps = steps[steps > 1e-9]
-    nblocks = int(min(blocks, steps.size))
-    if nblocks >= 2:
-        sums = np.array([b.sum() for b in np.array_split(steps, nblocks)])
-        mean = float(sums.mean())
-        cv = float(sums.std() / mean) if mean > 0 else 0.0
-        if cv > step_cv:
-            problems.append(MapProblem("steps", shape, "warning", cv, step_cv))
-    return tuple(problems)
-
 
 _MAP_KNOBS = (
     Knob(name="reversal", default=5.0, minimum=0.0,
@@ -459,7 +151,7 @@ def colormap_not_uniform(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
         if digest in reported:
             continue
         reported.add(digest)
-        for p in _judge_cached(samples.tobytes(), samples.shape[0], params):
+        for p in judge_cached(samples.tobytes(), samples.shape[0], params):
             yield Hit(message=_map_message(cm, p), source=cm.source, axes=ax.index,
                       severity=None if p.severity == "error" else p.severity, key=f"map:{digest}:{p.kind}")
 
@@ -546,7 +238,7 @@ _SERIES_KNOBS = (
 )
 def colours_confusable_cvd(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
     """Two colours that must be told apart in one axes collapse under simulated protan, deutan or tritan vision."""
-    groups = _axes_pairs(figure, knobs)
+    groups = axes_pairs(figure, knobs)
     if not groups:
         return
     severity = cs.check_severity(min(max(float(knobs["cvd_severity"]), 0.0), 100.0))
@@ -562,7 +254,7 @@ def colours_confusable_cvd(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
         ab = cs.pairwise_delta_e(ucs[..., 1:])  # distance in the a'b' plane: hue and chroma only
         for i, j in g.pairs:
             a, b = g.series[i], g.series[j]
-            names = f"{_name(a, g.hexes[i])} and {_name(b, g.hexes[j])}"
+            names = f"{series_name(a, g.hexes[i])} and {series_name(b, g.hexes[j])}"
             d = {v: float(de[k, i, j]) for k, v in enumerate(cs.VISIONS)}
             source = b.source or a.source
             key = f"{g.hexes[i]}/{g.hexes[j]}"
@@ -643,7 +335,7 @@ def colours_confusable_cvd(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
 )
 def colours_confusable_gray(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
     """Two colours that must be told apart in one axes have nearly the same lightness in grayscale."""
-    groups = _axes_pairs(figure, knobs)
+    groups = axes_pairs(figure, knobs)
     if not groups:
         return
     lightness = cs.cie_lightness(np.concatenate([g.rgb for g in groups]))
@@ -656,7 +348,7 @@ def colours_confusable_gray(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
             gap = float(abs(lstar[i] - lstar[j]))
             if gap < limit:
                 a, b = g.series[i], g.series[j]
-                yield Hit(message=f"{_name(a, g.hexes[i])} and {_name(b, g.hexes[j])} have CIE L* {lstar[i]:.1f} "
+                yield Hit(message=f"{series_name(a, g.hexes[i])} and {series_name(b, g.hexes[j])} have CIE L* {lstar[i]:.1f} "
                                   f"and {lstar[j]:.1f} (difference {gap:.1f}, below {limit:g}) and look alike in "
                                   f"grayscale",
                           source=b.source or a.source, axes=g.axes, key=f"{g.hexes[i]}/{g.hexes[j]}")
@@ -681,8 +373,8 @@ def _text_background(text: Text, ax: Axes, figure: FigureModel) -> np.ndarray:
     if text.role == "legend":
         frames = [p for p in ax.patches if p.kind == "legend"]
         if frames:
-            under = _opaque(frames[0].facecolor, under)
-    return _opaque(text.background, under)
+            under = opaque(frames[0].facecolor, under)
+    return opaque(text.background, under)
 
 
 def _floor2(x: float) -> str:
@@ -756,7 +448,7 @@ def _text_hits(ax: Axes, figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
         if not text.text.strip() or np.isnan(np.asarray(text.color, float)).any() or text.color[3] <= 0.0:
             continue
         bg = _text_background(text, ax, figure)
-        fg = _opaque(text.color, bg)
+        fg = opaque(text.color, bg)
         ratio = float(cs.contrast_ratio(fg, bg))
         large = is_large_text(text, knobs["large_size"], knobs["large_bold_size"])
         limit = knobs["large_text_ratio"] if large else knobs["text_ratio"]
@@ -797,16 +489,16 @@ def _mark_hits(ax: Axes, figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
     for ln in ax.lines:
         if ln.role == "data" and ln.linestyle not in ("", " ", "None", "none"):
             c = np.asarray([ln.color], float)
-            marks.append(("line", _public(ln.label), ratios(c), c, ln.source))
+            marks.append(("line", public_label(ln.label), ratios(c), c, ln.source))
     for ps in ax.points:
         if ps.colormap is None and np.asarray(ps.facecolors).size + np.asarray(ps.edgecolors).size:
             faces = ps.facecolors if np.asarray(ps.facecolors).size else ps.edgecolors
-            marks.append(("markers", _public(ps.label), best(ps.facecolors, ps.edgecolors),
-                          _visible_colors(faces, ps.edgecolors), ps.source))
+            marks.append(("markers", public_label(ps.label), best(ps.facecolors, ps.edgecolors),
+                          visible_colors(faces, ps.edgecolors), ps.source))
     for bs in ax.bars:
         if np.asarray(bs.facecolors).size:
-            marks.append(("bars", _public(bs.label), best(bs.facecolors, bs.edgecolors),
-                          _visible_colors(bs.facecolors, bs.edgecolors), bs.source))
+            marks.append(("bars", public_label(bs.label), best(bs.facecolors, bs.edgecolors),
+                          visible_colors(bs.facecolors, bs.edgecolors), bs.source))
     bg_hex = cs.to_hex(bg)
     for what, label, r, colors, source in marks:
         if r.size == 0:
@@ -828,5 +520,7 @@ def _mark_hits(ax: Axes, figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
                    f"(lowest {_floor2(float(r[worst]))}:1, {shown})")
         yield Hit(message=msg, source=source, axes=ax.index, severity="warning", key=f"mark:{what}:{label}:{shown}")
 
+
+__all__ = ["MapProblem", "RULES", "Series", "axes_series", "judge_colormap", "palette_colors"]
 
 RULES = (colormap_not_uniform, colours_confusable_cvd, colours_confusable_gray, low_contrast)
