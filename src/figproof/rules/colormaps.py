@@ -14,6 +14,7 @@ import numpy as np
 
 from figproof import colour_science as cs
 
+
 @dataclass(frozen=True, slots=True)
 class MapProblem:
     """One defect of a colour map, as numbers; the rule turns it into a message."""
