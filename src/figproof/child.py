@@ -31,6 +31,7 @@ class Spec:
     out: str
     memory_limit: int = 0  # MiB, 0 = none
     network: bool = False
+    mode: str = "fresh-interpreter"  # or "warm-pool": how the process was started
 
     @classmethod
     def read(cls, path: Path) -> Spec:
@@ -85,7 +86,7 @@ def notebook_cells(path: Path) -> list[tuple[int, str, int]]:
     except Exception as exc:  # nbformat raises several types for corrupt files
         raise ValueError(f"cannot read notebook: {str(exc).splitlines()[0] if str(exc) else type(exc).__name__}")
     cells = []
-    for index, cell in enumerate(nb.cells):
+    for index, cell in enumerate(nb.cells, start=1):  # cells count from 1, markdown cells included
         if cell.get("cell_type") != "code":
             continue
         lines = cell.get("source", "").splitlines()
@@ -116,7 +117,7 @@ def _user_frame(tb: Any, rec: Any) -> Any:
 def run_user_code(spec: Spec, rec: Any) -> Any:
     """Execute the script or notebook; return a ScriptError or None."""
     from figproof.capture import NetworkRefused
-    from figproof.model import ScriptError
+    from figproof.model import ScriptError, Source
 
     path = Path(spec.sandbox) / spec.script
     try:
@@ -138,11 +139,22 @@ def run_user_code(spec: Spec, rec: Any) -> Any:
         if isinstance(exc, EOFError) and "needs-input" in rec.notes:
             kind = "needs-input"
         message = str(exc).strip().splitlines()[0][:300] if str(exc).strip() else ""
+        source = _user_frame(exc.__traceback__, rec)
+        if isinstance(exc, SyntaxError) and exc.filename:
+            rel = rec.repo_path(exc.filename)
+            source = Source(path=rel, line=exc.lineno, cell=_cell_of(exc.filename)) if rel else source
+            message = f"{exc.msg} (line {exc.lineno})" if exc.lineno else exc.msg
         if isinstance(exc, NetworkRefused):
             message = message.removeprefix("figproof: ")
-        return ScriptError(kind=kind, type=type(exc).__name__, message=message,
-                           source=_user_frame(exc.__traceback__, rec))
+        return ScriptError(kind=kind, type=type(exc).__name__, message=message, source=source)
     return None
+
+
+def _cell_of(filename: str) -> int | None:
+    from figproof.capture import CELL_RE
+
+    m = CELL_RE.match(filename)
+    return int(m.group("cell")) if m else None
 
 
 def _run_script(path: Path) -> None:
@@ -180,6 +192,9 @@ def main(argv: list[str] | None = None) -> int:
         isolation.append("memory-cap")
     if not spec.network:
         isolation.append("network-off")
+    isolation.append(spec.mode)
+    # written before the user's code runs, so the parent knows the isolation even when the run is lost
+    (out / "isolation.json").write_text(json.dumps(isolation), encoding="utf-8")
     sys.stdout = _CappedStream(sys.stdout, CAPTURE_LIMIT)
     sys.stderr = _CappedStream(sys.stderr, CAPTURE_LIMIT)
 
