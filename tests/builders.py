@@ -152,3 +152,53 @@ def box(position: float, values: Sequence[float], *, orientation: str = "vertica
 
 def text(content: str, box: Sequence[float], *, role: str = "annotation", in_axes: bool = True) -> Text:
     return Text(text=content, role=role, display_box=tuple(map(float, box)), in_axes=in_axes)
+
+
+# --------------------------------------------------------------------------
+# distribution marks and recorded data (added for the distribution rules)
+# --------------------------------------------------------------------------
+
+
+def sample_of(values: Sequence[float], *, origin: str = "boxplot_stats", line: int = 1) -> Sample:
+    """A recorded group of raw values, as the child records a statistics helper's input."""
+    return Sample(values=np.asarray(values, float), origin=origin, source=src(line))
+
+
+def box_of(values: Sequence[float], *, position: float = 1.0, sample: int | None = None, line: int = 1,
+           orientation: str = "vertical", with_n: bool = True) -> Box:
+    """A box with the statistics matplotlib's boxplot_stats computes (quartiles by np.percentile, 1.5 IQR)."""
+    v = np.asarray(values, float)
+    v = v[np.isfinite(v)]
+    q1, med, q3 = np.percentile(v, [25, 50, 75])
+    iqr = q3 - q1
+    inside = v[(v >= q1 - 1.5 * iqr) & (v <= q3 + 1.5 * iqr)]
+    return Box(orientation=orientation, position=float(position), median=float(med), q1=float(q1), q3=float(q3),
+               whislo=float(inside.min()), whishi=float(inside.max()),
+               fliers=v[(v < q1 - 1.5 * iqr) | (v > q3 + 1.5 * iqr)],
+               n=int(v.size) if with_n else None, sample=sample, source=src(line))
+
+
+def violin_of(values: Sequence[float], *, position: float = 1.0, sample: int | None = None, line: int = 1,
+              orientation: str = "vertical") -> Violin:
+    v = np.asarray(values, float)
+    return Violin(orientation=orientation, position=float(position), low=float(np.nanmin(v)),
+                  high=float(np.nanmax(v)), n=int(np.isfinite(v).sum()), sample=sample, source=src(line))
+
+
+def table_of(path: str = "data/measurements.csv", *, groups: dict[str, Sequence[int]] | None = None,
+             **columns: Sequence[float]) -> LoadedTable:
+    """A loaded table: numeric columns, and text columns as integer codes in ``groups``."""
+    return LoadedTable(path=path, reader="pandas.read_csv",
+                       columns={k: np.asarray(v, float) for k, v in columns.items()},
+                       groups={k: np.asarray(v, np.int64) for k, v in (groups or {}).items()})
+
+
+def call_of(name: str, *, axes: int | None = 0, line: int = 1, **arrays: Sequence[float]) -> PlotCall:
+    return PlotCall(name=name, axes=axes, arrays={k: np.asarray(v, float) for k, v in arrays.items()},
+                    source=src(line))
+
+
+def asym_errorbars(positions, centers, lower, upper, *, line: int = 1, **kw: Any) -> ErrorBars:
+    """Error bars with explicit ends (percentile intervals, bootstrap CIs)."""
+    return ErrorBars(positions=np.asarray(positions, float), centers=np.asarray(centers, float),
+                     lower=np.asarray(lower, float), upper=np.asarray(upper, float), source=src(line), **kw)

@@ -269,7 +269,7 @@ def dip_pvalue(dip: float, n: int) -> float:
 
     q = _quantiles_at(n)
     cdf = float(np.interp(math.sqrt(n) * dip, q, np.asarray(_dip_table.PROBS, float)))
-    return min(1.0, max(0.0, 1.0 - cdf))
+    return min(1.0, max(0.0, round(1.0 - cdf, 12)))  # rounded so the floor reads as 0.001, not 0.0010000000000000009
 
 
 def dip_test(values: object, *, ties: bool = True) -> DipTest:

@@ -12,10 +12,11 @@ from collections.abc import Iterable, Mapping
 from figproof.context import RunContext
 from figproof.findings import Finding, Hit
 from figproof.model import FigureModel, ScriptRun, Source
-from figproof.rules import axes, bars, colour, reproduce, run, visibility
+from figproof.rules import axes, bars, colour, distribution, reproduce, run, visibility
 from figproof.rules.base import Rule
 
-RULES: tuple[Rule, ...] = axes.RULES + bars.RULES + colour.RULES + run.RULES + reproduce.RULES + visibility.RULES
+RULES: tuple[Rule, ...] = (axes.RULES + bars.RULES + colour.RULES + distribution.RULES + run.RULES + reproduce.RULES
+                          + visibility.RULES)
 
 
 def by_id() -> dict[str, Rule]:
