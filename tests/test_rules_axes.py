@@ -281,3 +281,26 @@ def test_rule_records_are_complete() -> None:
     for r in (axis_clips_data, axis_empty_span):
         assert r.why and r.fix and r.sources and r.bad.strip() and r.good.strip()
         assert "import matplotlib.pyplot as plt" in r.bad and "savefig" in r.good
+
+
+def test_a_shaded_span_in_the_gap_lowers_it_but_a_full_height_background_does_not() -> None:
+    pts = points(np.zeros(3), [88.0, 91.0, 94.0], ylim=(0, 100))
+    # axhspan(0, 10): display y 52.8 to 89.76 px of the 52.8-422.4 px axes box
+    low = patch("rectangle", (80, 52.8, 576, 89.76), face=(0.8, 0.8, 0.8, 0.5))
+    (hit,) = empty(axes(ylim=(0, 100), points=[pts], patches=[low]))
+    assert hit.severity == "note" and "a shaded span" in hit.message
+    full = patch("rectangle", (80, 52.8, 576, 422.4), face=(0.8, 0.8, 0.8, 0.5))
+    (hit,) = empty(axes(ylim=(0, 100), points=[pts], patches=[full]))
+    assert hit.severity is None
+
+
+def test_logit_axis_fractions_round_trip() -> None:
+    # 0.5 sits in the middle of a logit axis from 0.1 to 0.9 (log10(p / (1 - p)) is symmetric about 0.5)
+    from figproof.rules.axes import _fraction, _from_fraction
+
+    axis = Axis(lim=(0.1, 0.9), scale="logit")
+    f = _fraction(np.array([0.1, 0.5, 0.9, 0.0, 1.0]), axis)
+    assert f[:3] == pytest.approx([0.0, 0.5, 1.0])
+    assert np.isnan(f[3:]).all()
+    # a quarter of the way: odds the geometric mean of 1/9 and 1, i.e. 1/3, so p = 0.25
+    assert _from_fraction(0.25, axis) == pytest.approx(0.25)

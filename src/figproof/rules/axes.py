@@ -72,6 +72,20 @@ def _fraction(values: np.ndarray, axis: Axis) -> np.ndarray | None:
     return np.where(shown & np.isfinite(f), f, np.nan)
 
 
+def _from_fraction(fraction: float, axis: Axis) -> float:
+    """The data value at an axes fraction (inverse of :func:`_fraction`)."""
+    lims = _limits(axis)
+    if lims is None:
+        return float("nan")
+    _, _, tlo, thi = lims
+    t = tlo + fraction * (thi - tlo)
+    if axis.scale == "log":
+        return float(10.0**t)
+    if axis.scale == "logit":
+        return float(1.0 / (1.0 + 10.0**-t))
+    return float(t)
+
+
 def _fmt(value: float) -> str:
     """A limit or value as people write it: 4 significant digits, no '-0'."""
     text = f"{value:.4g}"
@@ -381,7 +395,7 @@ def _display_fraction(lo_px: float, hi_px: float, ax: Axes, which: str, axis: Ax
 
 
 def _value_fractions(ax: Axes, which: str, axis: Axis) -> np.ndarray:
-    """Axes fractions of every drawn value along the value axis (points, data lines, error bars, boxes, violins, fills)."""
+    """Axes fractions of the drawn values on the value axis: points, data lines, error bars, boxes, violins, fills."""
     vals: list[np.ndarray] = []
 
     def along(a_x: np.ndarray, a_y: np.ndarray) -> np.ndarray:
@@ -448,9 +462,13 @@ def _marks_in_gap(ax: Axes, which: str, axis: Axis, fmin: float, fmax: float) ->
             x0, y0, x1, y1 = p.display_box
             lo, hi = (x0, x1) if which == "x" else (y0, y1)
             if hi > lo:
+                # a span (axhspan: a normal range, a detection limit) explains the gap when most of it lies
+                # there; a background band behind all the data does not
                 f0, f1 = _display_fraction(lo, hi, ax, which, axis)
-                if f0 < fmin - 1e-9 or f1 > fmax + 1e-9:
-                    if in_gap(f0, f1):
+                f0, f1 = max(f0, 0.0), min(f1, 1.0)
+                if f1 > f0 and not (f0 <= fmin and f1 >= fmax):
+                    outside = max(0.0, min(f1, fmin) - f0) + max(0.0, f1 - max(f0, fmax))
+                    if outside > (f1 - f0) / 2:
                         found.append("a shaded span")
     return found
 
@@ -546,16 +564,8 @@ def axis_empty_span(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
         empty = fmin + (1.0 - fmax)
         if empty < max_share:
             continue
-        lo, hi, tlo, thi = lims
-        # values back in data units for the message
-        def back(fr: float) -> float:
-            t = tlo + fr * (thi - tlo)
-            if axis.scale == "log":
-                return float(10.0 ** t)
-            if axis.scale == "logit":
-                return float(1.0 / (1.0 + 10.0 ** -t))
-            return float(t)
-        dmin, dmax = back(fmin), back(fmax)
+        lo, hi, _, _ = lims
+        dmin, dmax = _from_fraction(fmin, axis), _from_fraction(fmax, axis)
         confidence: str | None = None
         zero_note = ""
         if axis.scale == "linear" and lo <= 0.0 <= hi and not dmin <= 0.0 <= dmax:
