@@ -123,6 +123,7 @@ def cmd_explain(args: argparse.Namespace) -> int:
 
 def run_check(path: Path, args: argparse.Namespace, *, shown_root: str | None = None) -> int:
     """Check ``path`` and write the reports asked for in ``args``."""
+    from figproof.accept import AcceptedFileError
     from figproof.config import ConfigError
     from figproof.discover import DiscoveryError
     from figproof.pipeline import CheckOptions, check
@@ -134,7 +135,7 @@ def run_check(path: Path, args: argparse.Namespace, *, shown_root: str | None = 
     options = CheckOptions(jobs=getattr(args, "jobs", None), skip_copy=tuple(s for s in skip if s))
     try:
         checked = check(path, options)
-    except (ConfigError, DiscoveryError) as exc:
+    except (ConfigError, DiscoveryError, AcceptedFileError) as exc:
         raise UsageError(str(exc)) from None
     try:
         text = write_reports(checked, args, shown_root=shown_root)

@@ -26,6 +26,7 @@ import signal
 import subprocess
 import sys
 import tempfile
+import threading
 import time
 from collections.abc import Callable, Iterable, Sequence
 from concurrent.futures import ThreadPoolExecutor
@@ -65,6 +66,8 @@ class Options:
 
 
 class Runner(Protocol):
+    """Runs one task in a contained child and returns what it learnt; must be safe to call from threads."""
+
     def run(self, task: Task, options: Options) -> ScriptRun: ...
 
 
@@ -156,42 +159,75 @@ def kill_group(proc: subprocess.Popen[bytes], grace: float = GRACE_SECONDS) -> N
         pass
 
 
+@dataclass(frozen=True, slots=True, kw_only=True)
+class Launch:
+    """What a runner needs to start one child: its spec file, working folder, environment and output files."""
+
+    spec: Path
+    cwd: Path
+    env: dict[str, str]
+    stdout: Path
+    stderr: Path
+
+
+LaunchFn = Callable[[Launch, float], tuple[int | None, bool]]
+
+
+def run_contained(task: Task, options: Options, launch: LaunchFn, mode: str) -> ScriptRun:
+    """Prepare the sandbox for ``task``, start the child with ``launch`` and collect its run.
+
+    ``launch(job, timeout)`` starts the child, waits at most ``timeout`` seconds, kills the child's process
+    group and returns ``(exit code or -signal, timed_out)``.  Both runners share everything else, so the
+    containment is the same whichever starts the process.
+    """
+    out = options.artifacts / _slug(task.script)
+    if out.exists():
+        shutil.rmtree(out)
+    out.mkdir(parents=True)
+    with tempfile.TemporaryDirectory(prefix="figproof-") as tmp:
+        sandbox = Path(tmp) / "repo"
+        copy_repo(options.root, sandbox, options.skip_copy)
+        mplconfig = Path(tmp) / "mplconfig"
+        mplconfig.mkdir()
+        cwd = sandbox if task.working_dir == "root" else (sandbox / task.script).parent
+        spec = {"script": task.script, "sandbox": str(sandbox), "cwd": str(cwd), "out": str(out),
+                "memory_limit": options.memory_limit, "network": options.network, "mode": mode}
+        spec_path = Path(tmp) / "spec.json"
+        spec_path.write_text(json.dumps(spec), encoding="utf-8")
+        job = Launch(spec=spec_path, cwd=cwd, env=child_env(mplconfig), stdout=out / "stdout.txt",
+                     stderr=out / "stderr.txt")
+        started = time.perf_counter()
+        returncode, timed_out = launch(job, options.timeout)
+        seconds = time.perf_counter() - started
+        run = _collect(task, out, returncode, timed_out, seconds, options.timeout)
+        _keep_outputs(run, sandbox, out / "regenerated")
+    return run
+
+
 class FreshInterpreter:
     """Start a new Python interpreter for every script (works everywhere; the slow but simple mode)."""
+
+    name = "fresh-interpreter"
 
     def __init__(self, python: str | None = None) -> None:
         self.python = python or sys.executable
 
     def run(self, task: Task, options: Options) -> ScriptRun:
-        out = options.artifacts / _slug(task.script)
-        if out.exists():
-            shutil.rmtree(out)
-        out.mkdir(parents=True)
-        with tempfile.TemporaryDirectory(prefix="figproof-") as tmp:
-            sandbox = Path(tmp) / "repo"
-            copy_repo(options.root, sandbox, options.skip_copy)
-            mplconfig = Path(tmp) / "mplconfig"
-            mplconfig.mkdir()
-            cwd = sandbox if task.working_dir == "root" else (sandbox / task.script).parent
-            spec = {"script": task.script, "sandbox": str(sandbox), "cwd": str(cwd), "out": str(out),
-                    "memory_limit": options.memory_limit, "network": options.network}
-            spec_path = Path(tmp) / "spec.json"
-            spec_path.write_text(json.dumps(spec), encoding="utf-8")
-            started = time.perf_counter()
-            timed_out = False
-            with open(out / "stdout.txt", "wb") as so, open(out / "stderr.txt", "wb") as se:
-                proc = subprocess.Popen([self.python, "-m", "figproof.child", str(spec_path)], cwd=str(cwd),
-                                        stdin=subprocess.DEVNULL, stdout=so, stderr=se, env=child_env(mplconfig),
-                                        start_new_session=True)
-                try:
-                    proc.wait(timeout=options.timeout)
-                except subprocess.TimeoutExpired:
-                    timed_out = True
-                kill_group(proc)
-            seconds = time.perf_counter() - started
-            run = _collect(task, out, proc.returncode, timed_out, seconds, options.timeout)
-            _keep_outputs(run, sandbox, out / "regenerated")
-        return run
+        """Run one script in a new interpreter."""
+        return run_contained(task, options, self._launch, self.name)
+
+    def _launch(self, job: Launch, timeout: float) -> tuple[int | None, bool]:
+        timed_out = False
+        with open(job.stdout, "wb") as so, open(job.stderr, "wb") as se:
+            proc = subprocess.Popen([self.python, "-m", "figproof.child", str(job.spec)], cwd=str(job.cwd),
+                                    stdin=subprocess.DEVNULL, stdout=so, stderr=se, env=job.env,
+                                    start_new_session=True)
+            try:
+                proc.wait(timeout=timeout)
+            except subprocess.TimeoutExpired:
+                timed_out = True
+            kill_group(proc)
+        return proc.returncode, timed_out
 
 
 def _collect(task: Task, out: Path, returncode: int | None, timed_out: bool, seconds: float,
@@ -211,8 +247,18 @@ def _collect(task: Task, out: Path, returncode: int | None, timed_out: bool, sec
             base = replace(base, status="timeout")
         elif base.error is not None and base.error.kind == "memory":
             base = replace(base, status="memory")
+        base = replace(base, isolation=_isolation(out))
     return replace(base, seconds=round(seconds, 3), working_dir=task.working_dir, stdout_tail=stdout,
                    stderr_tail=stderr)
+
+
+def _isolation(out: Path) -> tuple[str, ...]:
+    """Isolation the child set up before the user's code ran (written early, so it survives a lost run)."""
+    try:
+        tags = json.loads((out / "isolation.json").read_text(encoding="utf-8"))
+        return tuple(str(t) for t in tags) if isinstance(tags, list) else ()
+    except (OSError, ValueError):
+        return ()
 
 
 def _lost_error(returncode: int | None, timed_out: bool, timeout: float, stderr: str) -> ScriptError:
@@ -246,30 +292,61 @@ def _slug(script: str) -> str:
 
 def artifact_dir(options: Options, script: str) -> Path:
     """Folder holding one script's run record, renders and regenerated files."""
-    return options.artifacts / _slug(script)
+    return artifact_folder(options.artifacts, script)
+
+
+def artifact_folder(artifacts: Path, script: str) -> Path:
+    """The folder of ``script`` under an artifacts root (same layout as :func:`artifact_dir`)."""
+    return artifacts / _slug(script)
+
+
+def default_runner() -> Runner:
+    """The warm pool where fork is safe and the pool starts; a fresh interpreter per script otherwise.
+
+    ``FIGPROOF_RUNNER=fresh`` forces the fresh-interpreter mode (for debugging and benchmarks).
+    """
+    if os.environ.get("FIGPROOF_RUNNER", "").strip().lower() in ("fresh", "fresh-interpreter"):
+        return FreshInterpreter()
+    from figproof.pool import WarmPool
+
+    pool = WarmPool()
+    return pool if pool.start() else FreshInterpreter()
 
 
 def execute_all(tasks: Iterable[Task], options: Options, runner: Runner | None = None,
                 progress: Callable[[ScriptRun, int, int], None] | None = None) -> list[ScriptRun]:
-    """Run every task (``options.jobs`` at a time); results in task order; one failure never stops the rest."""
-    runner = runner or FreshInterpreter()
+    """Run every task (``options.jobs`` at a time); results in task order; one failure never stops the rest.
+
+    With ``runner=None`` a runner is chosen by :func:`default_runner` and shut down before returning.
+    """
     tasks = list(tasks)
+    if not tasks:
+        return []
+    owned = runner is None
+    active: Runner = default_runner() if runner is None else runner
     results: list[ScriptRun | None] = [None] * len(tasks)
     done = 0
+    lock = threading.Lock()
 
     def one(i: int) -> None:
         nonlocal done
         task = tasks[i]
         try:
-            run = runner.run(task, options)
+            run = active.run(task, options)
         except Exception as exc:  # noqa: BLE001 - a broken sandbox for one script must not stop the others
             run = ScriptRun(path=task.script, status="failed", working_dir=task.working_dir,
                             error=ScriptError(kind="no-report", type=type(exc).__name__, message=str(exc)[:300]))
-        results[i] = run
-        done += 1
-        if progress is not None:
-            progress(run, done, len(tasks))
+        with lock:
+            results[i] = run
+            done += 1
+            if progress is not None:
+                progress(run, done, len(tasks))
 
-    with ThreadPoolExecutor(max_workers=max(1, options.jobs)) as pool:
-        list(pool.map(one, range(len(tasks))))
+    try:
+        with ThreadPoolExecutor(max_workers=max(1, options.jobs)) as pool:
+            list(pool.map(one, range(len(tasks))))
+    finally:
+        close = getattr(active, "close", None)
+        if owned and callable(close):
+            close()
     return [r for r in results if r is not None]

@@ -418,9 +418,18 @@ def _barset(rects: list[Rectangle], vertical: bool, origin: str, label: str, ren
     boxes = np.array([_box(r.get_window_extent(renderer)) for r in rects], float).reshape(-1, 4)
     return BarSet(orientation="vertical" if vertical else "horizontal", positions=positions, widths=widths,
                   bottoms=bottoms, heights=heights, facecolors=_rgba_array([r.get_facecolor() for r in rects]),
-                  edgecolors=_rgba_array([r.get_edgecolor() for r in rects]), display_boxes=boxes, origin=origin,
+                  edgecolors=_edges(rects), display_boxes=boxes, origin=origin,
                   label=label if not label.startswith("_") else "", zorder=float(rects[0].get_zorder()),
                   source=_src(rects[0]), draw_order=draw_order)
+
+
+def _edges(rects: list[Rectangle]) -> np.ndarray:
+    """Edge colours, transparent where the edge is not drawn (line width 0, matplotlib's default for bars)."""
+    edges = _rgba_array([r.get_edgecolor() for r in rects])
+    if edges.shape[0] == len(rects):
+        widths = np.array([r.get_linewidth() for r in rects], float)
+        edges[widths <= 0, 3] = 0.0
+    return edges
 
 
 def _patch(p: Any, kind: str, renderer: Any, draw_order: int | None = None) -> Patch:

@@ -50,7 +50,38 @@ def write_reports(checked: Checked, args: argparse.Namespace, *, shown_root: str
     return text
 
 
+def _link(image: Path, relative_to: Path | None) -> str:
+    base = relative_to if relative_to is not None else Path.cwd()
+    return Path(os.path.relpath(image.resolve(), base.resolve())).as_posix()
+
+
 def write_images(checked: Checked, folder: Path, relative_to: Path | None) -> dict[str, str]:
-    """Images for findings; returns figure id / output path → link relative to the markdown file."""
+    """Images for findings; returns figure id / output path → link relative to the markdown file.
+
+    Figures with colour findings get a panel of simulated views (protan, deutan, tritan, and
+    grayscale for gray findings).
+    """
+    from figproof.execute import artifact_folder
+    from figproof.report.images import panel_needed, write_cvd_panel
+
     folder.mkdir(parents=True, exist_ok=True)
-    return {}
+    by_figure: dict[str, set[str]] = {}
+    for f in checked.result.findings:
+        if f.figure and f.accepted is None:
+            by_figure.setdefault(f.figure, set()).add(f.rule)
+    severity = checked.config.rules.get("colours-confusable-cvd")
+    cvd = float(severity.knobs.get("cvd_severity", 100.0)) if severity is not None else 100.0
+    links: dict[str, str] = {}
+    for run in checked.result.runs:
+        for fig in run.figures:
+            needed, gray = panel_needed(by_figure.get(fig.id, ()))
+            if not needed or fig.render is None:
+                continue
+            render = artifact_folder(checked.artifacts, run.path) / "renders" / fig.render
+            out = folder / f"{fig.id.replace('/', '__').replace('#', '-figure-')}-colour-vision.png"
+            try:
+                write_cvd_panel(render, out, gray=gray, severity=cvd)
+            except (OSError, ValueError):
+                continue
+            links[fig.id] = _link(out, relative_to)
+    return links

@@ -12,11 +12,19 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from figproof import __version__, rules
+from figproof.accept import (
+    Allow,
+    allow_key,
+    apply_acceptance,
+    load_accepted,
+    notebook_allow_comments,
+    parse_allow_comments,
+)
 from figproof.config import Config, load_config
 from figproof.context import Inventory, RunContext
 from figproof.discover import choose_working_dir, discover
 from figproof.execute import Options, Runner, Task, execute_all
-from figproof.findings import CheckResult
+from figproof.findings import CheckResult, Finding
 from figproof.model import ScriptRun
 from figproof.policy import summarise
 
@@ -54,8 +62,8 @@ def check(path: Path, options: CheckOptions | None = None, *, runner: Runner | N
 
     Raises
     ------
-    figproof.config.ConfigError, figproof.discover.DiscoveryError
-        For configuration and discovery problems (the CLI turns them into exit code 2).
+    figproof.config.ConfigError, figproof.discover.DiscoveryError, figproof.accept.AcceptedFileError
+        For configuration, discovery and accepted-file problems (the CLI turns them into exit code 2).
     """
     options = options or CheckOptions()
     config = load_config(path)
@@ -68,13 +76,39 @@ def check(path: Path, options: CheckOptions | None = None, *, runner: Runner | N
     runs = tuple(execute_all(tasks, exec_options, runner=runner, progress=progress))
     context = RunContext(inventory=inventory, runs=runs)
     findings = rules.apply(runs, context, config.rules)
-    notes: list[str] = []
+    findings, notes = accept_findings(findings, config, inventory)
     if not inventory.scripts:
         notes.append("no figure scripts found (no .py or .ipynb file imports matplotlib, seaborn or pandas plotting)")
     summary = summarise(runs, findings, config.fail_on)
     result = CheckResult(root=_shown_root(config.root, path), version=__version__, runs=runs,
                          findings=tuple(findings), summary=summary, fail_on=config.fail_on, notes=tuple(notes))
     return Checked(result=result, config=config, inventory=inventory, context=context, artifacts=artifacts)
+
+
+def accept_findings(findings: list[Finding], config: Config, inventory: Inventory) -> tuple[list[Finding], list[str]]:
+    """Apply inline allow comments and the accepted-findings file; return findings and notes about problems."""
+    known = rules.by_id().keys()
+    allows: dict[str, dict[int, list[Allow]]] = {}
+    notes: list[str] = []
+    for path in sorted(set(inventory.scripts) | {f.path for f in findings}):
+        file = config.root / path
+        try:
+            text = file.read_text(encoding="utf-8")
+        except (OSError, UnicodeDecodeError):
+            continue
+        if path.endswith(".ipynb"):
+            found, problems = notebook_allow_comments(path, text, known)
+            allows.update(found)
+        else:
+            per_line, problems = parse_allow_comments(text, known)
+            if per_line:
+                allows[allow_key(path, None)] = per_line
+        notes += [f"{path}, {p}" for p in problems]
+    entries = load_accepted(config.accepted_path())  # AcceptedFileError: one line, the CLI exits 2
+    marked, stale = apply_acceptance(findings, allows, entries)
+    notes += [f"{config.accepted_file}: entry for {e.rule} in {e.path} matches no finding any more (stale)"
+              for e in stale]
+    return sorted(marked, key=Finding.sort_key), notes
 
 
 def _shown_root(root: Path, asked: Path) -> str:

@@ -30,11 +30,12 @@ def fingerprint(rule_id: str, path: str, figure: str | None, axes: int | None, k
     return hashlib.sha256(text.encode()).hexdigest()[:16]
 
 
-def _finding(r: Rule, hit: Hit, *, fallback: Source, figure: str | None, severity: str) -> Finding:
+def _finding(r: Rule, hit: Hit, *, fallback: Source, figure: str | None, severity: str | None) -> Finding:
+    """``severity`` is the user's configured one: it wins over the hit's own, which wins over the default."""
     src = hit.source or fallback
     return Finding(
         rule=r.id,
-        severity=hit.severity or severity,
+        severity=severity or hit.severity or r.severity,
         confidence=hit.confidence or r.confidence,
         path=src.path,
         line=src.line,
@@ -59,7 +60,7 @@ def apply(
         severity, overrides = settings.get(r.id, (None, {}))
         if severity == "off":
             continue
-        sev = severity or r.severity
+        sev = severity
         knobs = {**r.defaults(), **overrides}
         for run_ in runs:
             script = Source(path=run_.path)
