@@ -392,7 +392,28 @@ def test_errorbars_bad_input() -> None:
         assert hits(errorbars_sem, figure(axes(errorbars=[eb]), tables=tables)) == []
     masked = table_of(a=np.ma.masked_array([1.0, 2.0, 3.0, 100.0], mask=[0, 0, 0, 1]).filled(np.nan))
     eb = errorbars([0], [2.0], [stats.sem([1.0, 2.0, 3.0])])
-    assert "±1 SEM (n = 3)" in hits(errorbars_sem, figure(axes(errorbars=[eb]), tables=(masked,)))[0].message
+    assert "shows ±1 SEM (n = 3)" in hits(errorbars_sem, figure(axes(errorbars=[eb]), tables=(masked,)))[0].message
     big = rng.normal(5, 1, 10**6)
     eb = errorbars([0], [big.mean()], [np.std(big, ddof=1)])
     assert "SD" in hits(errorbars_sem, figure(axes(errorbars=[eb]), tables=(table_of(v=big),)))[0].message
+
+
+def test_raw_values_from_a_recorded_plot_call() -> None:
+    # the observations were drawn with ax.plot(x, y, "o") in another axes; the call's arrays still count
+    rng = np.random.default_rng(38)
+    g = rng.normal(3, 1, 8)
+    eb = errorbars([0], [g.mean()], [np.std(g, ddof=1)])
+    fig = figure(axes(errorbars=[eb]), calls=(call_of("plot", axes=None, arg0=np.zeros(8), arg1=g),))
+    assert hits(errorbars_sem, fig)[0].message == "error bars: the one shows ±1 SD (ddof 1) (n = 8)"
+    # sizes of a scatter call are not observations
+    fig = figure(axes(errorbars=[eb]), calls=(call_of("scatter", x=np.zeros(8), y=np.ones(8), s=g),))
+    assert hits(errorbars_sem, fig) == []
+
+
+def test_importing_rules_does_not_import_pyplot() -> None:
+    import subprocess
+    import sys
+
+    code = "import sys, figproof.rules.distribution, figproof.dip; print('matplotlib.pyplot' in sys.modules)"
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
+    assert out.strip() == "False"

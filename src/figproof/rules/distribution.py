@@ -17,171 +17,26 @@ from scipy import stats
 
 from figproof.dip import dip_test
 from figproof.findings import Hit
-from figproof.model import Axes, Box, FigureModel, PointSet, Source, Violin
+from figproof.model import Axes, Box, ErrorBars, FigureModel, Source, Violin
 from figproof.rules.base import Knob, Knobs, pct, rule
+from figproof.rules.observations import (
+    Group,
+    drawn_near,
+    finite,
+    fmt,
+    groups_centred,
+    half_width,
+    matched,
+    recorded_groups,
+    rectilinear,
+    shown,
+    where,
+)
 
-# Mean/median equality between a drawn centre and a recorded group: the same numbers computed by
-# different code paths (pandas, numpy, seaborn) agree to a few ulps, so this only absorbs rounding.
-_SAME = 1e-7
 # The fewest distinct values that can show a lattice (two or three gaps fit a lattice by chance).
 _MIN_LATTICE_VALUES = 4
 # Largest divisor of the smallest gap tried when looking for the lattice step (gaps 2 and 3 -> step 1).
 _MAX_DIVISOR = 6
-# Plotting calls whose raw x/y arrays may hold the individual observations.
-_POINT_CALLS = ("scatter", "plot", "stem")
-
-
-# --------------------------------------------------------------------------
-# shared helpers
-# --------------------------------------------------------------------------
-
-
-def _finite(values: object) -> np.ndarray:
-    """Finite values of an array as float64 (masked entries dropped); empty on unusable input."""
-    if values is None:
-        return np.zeros(0)
-    if isinstance(values, np.ma.MaskedArray):
-        values = values.compressed()
-    try:
-        arr = np.asarray(values, dtype=float).ravel()
-    except (TypeError, ValueError):
-        return np.zeros(0)
-    return arr[np.isfinite(arr)]
-
-
-def _rectilinear(ax: Axes) -> bool:
-    return ax.projection == "rectilinear" and not ax.is_colorbar
-
-
-def _coords(ps: PointSet, vertical: bool) -> tuple[np.ndarray, np.ndarray]:
-    """(position, value) coordinates of a point set, NaN pairs dropped."""
-    x = np.asarray(ps.x, float).ravel()
-    y = np.asarray(ps.y, float).ravel()
-    m = min(x.size, y.size)
-    x, y = x[:m], y[:m]
-    pos, val = (x, y) if vertical else (y, x)
-    keep = np.isfinite(pos) & np.isfinite(val)
-    return pos[keep], val[keep]
-
-
-def _half_width(positions: list[float], default: float = 0.5) -> float:
-    """Half the smallest spacing between group positions: how far a group's points may stray."""
-    p = np.unique(_finite(positions))
-    if p.size < 2:
-        return default
-    return float(np.min(np.diff(p))) / 2
-
-
-def _drawn_near(ax: Axes, position: float, half: float, vertical: bool,
-                exclude: np.ndarray | None = None) -> np.ndarray:
-    """Value coordinates of the markers drawn within ``half`` of a group position.
-
-    ``exclude`` holds flier values: marker lines sitting exactly on the
-    group position whose values are all fliers belong to the box, not to the points.
-    """
-    found: list[np.ndarray] = []
-    for ps in ax.points:
-        pos, val = _coords(ps, vertical)
-        near = np.abs(pos - position) <= half
-        if not near.any():
-            continue
-        if exclude is not None and exclude.size and ps.kind == "line":
-            on_box = np.abs(pos[near] - position) <= 1e-9 * max(1.0, abs(position))
-            if on_box.all() and np.isin(val[near], exclude).all():
-                continue
-        found.append(val[near])
-    return np.concatenate(found) if found else np.zeros(0)
-
-
-def _matched(sample: np.ndarray, drawn: np.ndarray) -> int:
-    """How many values of ``sample`` are drawn (each drawn marker accounts for one value)."""
-    if sample.size == 0 or drawn.size == 0:
-        return 0
-    scale = max(float(np.max(np.abs(sample))), 1e-300)
-    step = scale * 1e-9
-    a, ca = np.unique(np.round(sample / step), return_counts=True)
-    b, cb = np.unique(np.round(drawn / step), return_counts=True)
-    _, ia, ib = np.intersect1d(a, b, assume_unique=True, return_indices=True)
-    return int(np.minimum(ca[ia], cb[ib]).sum())
-
-
-def _shown(ax: Axes, values: np.ndarray | None, n: int, position: float, half: float, vertical: bool,
-           fliers: np.ndarray | None = None) -> int:
-    """How many of a group's n observations are drawn as points near its position."""
-    drawn = _drawn_near(ax, position, half, vertical, fliers)
-    if values is not None and values.size:
-        return _matched(values, drawn)
-    return min(int(drawn.size), n)
-
-
-@dataclass(frozen=True, slots=True)
-class _Group:
-    """A group of raw observations the figure could be summarising, and where it came from."""
-
-    values: np.ndarray
-    origin: str  # "sample" | "call" | "table" | "points"
-    label: str
-
-
-def _recorded_groups(figure: FigureModel, axes_index: int) -> list[_Group]:
-    """Groups of raw values recorded for a figure: samples, point-call arrays, loaded table columns and groups."""
-    groups: list[_Group] = []
-    for i, s in enumerate(figure.samples):
-        groups.append(_Group(_finite(s.values), "sample", f"sample {i} ({s.origin})"))
-    for call in figure.calls:
-        if call.name not in _POINT_CALLS or (call.axes is not None and call.axes != axes_index):
-            continue
-        for key, arr in call.arrays.items():
-            groups.append(_Group(_finite(arr), "call", f"{call.name}() {key}"))
-    for table in figure.tables:
-        groupers = dict(table.groups)
-        for name, col in table.columns.items():
-            finite = col[np.isfinite(col)]
-            # Integer columns with few levels group rows as text columns do (common practice: coded groups).
-            if finite.size and 1 < np.unique(finite).size <= 50 and np.all(finite == np.round(finite)):
-                groupers.setdefault(name, col)
-        for name, col in table.columns.items():
-            groups.append(_Group(_finite(col), "table", f"'{name}' in {table.path}"))
-            for gname, codes in groupers.items():
-                if gname == name or len(codes) != len(col):
-                    continue
-                codes = np.asarray(codes, float)
-                for level in np.unique(codes[np.isfinite(codes)]):
-                    if level < 0 and gname in table.groups:
-                        continue  # -1 codes a missing label
-                    groups.append(_Group(_finite(col[codes == level]), "table",
-                                         f"'{name}' by '{gname}' in {table.path}"))
-    return [g for g in groups if g.values.size >= 1]
-
-
-def _same(a: float, b: float, scale: float) -> bool:
-    return abs(a - b) <= _SAME * max(abs(a), abs(b), scale) + 1e-300
-
-
-def _groups_centred(groups: list[_Group], center: float, statistic: str) -> list[_Group]:
-    """Groups whose mean (or median) equals a drawn centre, distinct by value."""
-    out: list[_Group] = []
-    seen: set[bytes] = set()
-    for g in groups:
-        if g.values.size < 2:
-            continue
-        c = float(np.mean(g.values)) if statistic == "mean" else float(np.median(g.values))
-        spread = float(np.ptp(g.values))
-        if not _same(c, center, spread):
-            continue
-        key = np.sort(g.values).tobytes()
-        if key not in seen:
-            seen.add(key)
-            out.append(g)
-    return out
-
-
-def _fmt(v: float) -> str:
-    return f"{v:.3g}"
-
-
-def _where(vertical: bool, position: float) -> str:
-    return f"{'x' if vertical else 'y'} = {_fmt(position)}"
 
 
 # --------------------------------------------------------------------------
@@ -275,7 +130,7 @@ def _value_sets(ax: Axes, axis: str) -> list[tuple[str, np.ndarray, Source | Non
     log = (ax.x if axis == "x" else ax.y).scale == "log"
     sets: list[tuple[str, np.ndarray, Source | None]] = []
     for i, ps in enumerate(ax.points):
-        v = _finite(ps.x if axis == "x" else ps.y)
+        v = finite(ps.x if axis == "x" else ps.y)
         if log:
             v = np.log10(v[v > 0])  # a lattice on a log axis is regular in log10 of the value
         sets.append((f"points:{i}", v, ps.source))
@@ -350,9 +205,9 @@ def _value_sets(ax: Axes, axis: str) -> list[tuple[str, np.ndarray, Source | Non
 )
 def dots_binned(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
     """A dot or strip plot whose dots sit on a regular lattice (bin centres) instead of the measured values."""
-    columns = [(name, t.path, _finite(col)) for t in figure.tables for name, col in t.columns.items()]
+    columns = [(name, t.path, finite(col)) for t in figure.tables for name, col in t.columns.items()]
     for ax in figure.axes:
-        if not _rectilinear(ax) or not ax.points:
+        if not rectilinear(ax) or not ax.points:
             continue
         for axis in ("x", "y"):
             meta = ax.x if axis == "x" else ax.y
@@ -373,7 +228,7 @@ def _binned_hit(ax: Axes, axis: str, key: str, values: np.ndarray, source: Sourc
     """The finding for a lattice, judged against the loaded columns when they tell."""
     log = " (log10)" if (ax.x if axis == "x" else ax.y).scale == "log" else ""
     fact = (f"the {axis} values{log} of {values.size} points take only {lattice.distinct} distinct values, "
-            f"on a lattice of step {_fmt(lattice.step)}")
+            f"on a lattice of step {fmt(lattice.step)}")
     for name, path, col in columns:
         if _affine_equal(values, col):
             return None  # the plotted values are the measured ones: truly discrete data
@@ -387,8 +242,8 @@ def _binned_hit(ax: Axes, axis: str, key: str, values: np.ndarray, source: Sourc
                    key=f"{axis}:{key}")
     if lattice.offset == "zero":
         return None  # round values at round multiples: a measuring resolution or a score
-    where = "halfway between" if lattice.offset == "half" else "off"
-    return Hit(message=f"{fact}, {where} multiples of the step (like bin centres)", source=source,
+    place = "halfway between" if lattice.offset == "half" else "off"
+    return Hit(message=f"{fact}, {place} multiples of the step (like bin centres)", source=source,
                axes=ax.index, confidence="possible", key=f"{axis}:{key}")
 
 
@@ -414,7 +269,7 @@ class _Summary:
 def _sample_values(figure: FigureModel, mark: Box | Violin) -> np.ndarray | None:
     if mark.sample is None or not 0 <= mark.sample < len(figure.samples):
         return None
-    return _finite(figure.samples[mark.sample].values)
+    return finite(figure.samples[mark.sample].values)
 
 
 def _summaries(figure: FigureModel, ax: Axes) -> list[_Summary]:
@@ -424,12 +279,12 @@ def _summaries(figure: FigureModel, ax: Axes) -> list[_Summary]:
         values = _sample_values(figure, box)
         n = box.n if box.n is not None else (values.size if values is not None else None)
         out.append(_Summary("box", box.position, box.orientation != "horizontal", n, values, box.source,
-                            fliers=_finite(box.fliers)))
+                            fliers=finite(box.fliers)))
     for v in ax.violins:
         values = _sample_values(figure, v)
         n = v.n if v.n is not None else (values.size if values is not None else None)
         out.append(_Summary("violin", v.position, v.orientation != "horizontal", n, values, v.source))
-    groups: list[_Group] | None = None
+    groups: list[Group] | None = None
     for bars in ax.bars:
         if bars.origin == "hist":
             continue
@@ -437,8 +292,8 @@ def _summaries(figure: FigureModel, ax: Axes) -> list[_Summary]:
             if not (math.isfinite(p) and math.isfinite(h)) or b != 0:
                 continue  # stacked segments are parts of a whole, not group summaries
             if groups is None:
-                groups = [g for g in _recorded_groups(figure, ax.index) if g.origin != "call"]
-            matches = _groups_centred(groups, float(h), "mean")
+                groups = [g for g in recorded_groups(figure, ax.index) if g.origin != "call"]
+            matches = groups_centred(groups, float(h), "mean")
             sizes = {g.values.size for g in matches}
             if len(sizes) == 1:
                 g = matches[0]
@@ -450,9 +305,9 @@ def _summaries(figure: FigureModel, ax: Axes) -> list[_Summary]:
 def _positions(ax: Axes) -> list[float]:
     pos = [b.position for b in ax.boxes] + [v.position for v in ax.violins]
     for bars in ax.bars:
-        pos.extend(_finite(bars.positions).tolist())
+        pos.extend(finite(bars.positions).tolist())
     for eb in ax.errorbars:
-        pos.extend(_finite(eb.positions).tolist())
+        pos.extend(finite(eb.positions).tolist())
     return pos
 
 
@@ -515,24 +370,23 @@ def summary_hides_small_n(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
     """Boxes, violins or bars that summarise small groups without drawing their points."""
     small, note_n, share = int(knobs["small_n"]), int(knobs["note_n"]), float(knobs["shown_share"])
     for ax in figure.axes:
-        if not _rectilinear(ax):
+        if not rectilinear(ax):
             continue
-        half = _half_width(_positions(ax))
+        half = half_width(_positions(ax))
         for s in _summaries(figure, ax):
             if s.n is None or s.n <= 0 or s.n >= note_n:
                 continue
-            drawn = _shown(ax, s.values, s.n, s.position, half, s.vertical, s.fliers)
+            drawn = shown(ax, s.values, s.n, s.position, half, s.vertical, s.fliers)
             if drawn >= share * s.n:
                 continue
             severity = "warning" if s.n < small else "note"
             confidence = "certain" if s.n < 5 else "likely" if s.n < small else "possible"
             if s.inferred:  # n came from matching a bar height to a loaded group's mean
                 confidence = "likely" if confidence == "certain" else "possible"
-            where = _where(s.vertical, s.position)
-            yield Hit(message=f"the {s.kind} at {where} summarises n = {s.n} values and draws "
+            yield Hit(message=f"the {s.kind} at {where(s.vertical, s.position)} summarises n = {s.n} values and draws "
                               f"{pct(drawn, s.n)} of them as points",
                       source=s.source, axes=ax.index, severity=severity, confidence=confidence,
-                      key=f"{s.kind}:{_fmt(s.position)}")
+                      key=f"{s.kind}:{fmt(s.position)}")
 
 
 def _has_violin(ax: Axes, box: Box, half: float) -> bool:
@@ -602,9 +456,9 @@ def _has_violin(ax: Axes, box: Box, half: float) -> bool:
 def box_hides_modes(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
     """A box plot of a group whose values are clearly multimodal (Hartigan's dip test)."""
     for ax in figure.axes:
-        if not _rectilinear(ax) or not ax.boxes:
+        if not rectilinear(ax) or not ax.boxes:
             continue
-        half = _half_width(_positions(ax))
+        half = half_width(_positions(ax))
         for box in ax.boxes:
             values = _sample_values(figure, box)
             if values is None or values.size < knobs["min_n"] or np.unique(values).size < knobs["min_unique"]:
@@ -612,18 +466,18 @@ def box_hides_modes(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
             vertical = box.orientation != "horizontal"
             if _has_violin(ax, box, half):
                 continue
-            if _shown(ax, values, values.size, box.position, half, vertical, _finite(box.fliers)) \
+            if shown(ax, values, values.size, box.position, half, vertical, finite(box.fliers)) \
                     >= knobs["shown_share"] * values.size:
                 continue
             test = dip_test(values)
             if test.pvalue >= knobs["alpha"]:
                 continue
             p = "p ≤ 0.001" if test.pvalue <= 0.001 else f"p = {test.pvalue:.3f}"  # the table's floor
-            yield Hit(message=f"the values behind the box at {_where(vertical, box.position)} are multimodal: "
+            yield Hit(message=f"the values behind the box at {where(vertical, box.position)} are multimodal: "
                               f"Hartigan's dip {test.dip:.3f}, {p}, n = {test.n}",
                       source=box.source, axes=ax.index,
                       confidence="likely" if test.pvalue < knobs["strong_alpha"] else "possible",
-                      key=f"box:{_fmt(box.position)}")
+                      key=f"box:{fmt(box.position)}")
 
 
 # --------------------------------------------------------------------------
@@ -780,16 +634,17 @@ def errorbars_sem(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
     rtol, boot_rtol = float(knobs["rtol"]), float(knobs["bootstrap_rtol"])
     small, share = int(knobs["small_n"]), float(knobs["shown_share"])
     for ax in figure.axes:
-        if not _rectilinear(ax) or not ax.errorbars:
+        if not rectilinear(ax) or not ax.errorbars:
             continue
-        recorded = _recorded_groups(figure, ax.index)
-        half = _half_width(_positions(ax))
+        recorded = recorded_groups(figure, ax.index)
+        half = half_width(_positions(ax))
         for k, eb in enumerate(ax.errorbars):
             yield from _errorbar_hits(ax, k, eb, recorded, half, rtol, boot_rtol, small, share)
 
 
-def _errorbar_hits(ax: Axes, k: int, eb, recorded: list[_Group], half: float, rtol: float, boot_rtol: float,
+def _errorbar_hits(ax: Axes, k: int, eb: ErrorBars, recorded: list[Group], half: float, rtol: float, boot_rtol: float,
                    small: int, share: float) -> Iterator[Hit]:
+    """One finding per error-bar set: the type of each bar whose raw group is known, and SEM on small n."""
     vertical = eb.orientation != "horizontal"
     kinds: list[str] = []
     sizes: list[int] = []
@@ -803,9 +658,9 @@ def _errorbar_hits(ax: Axes, k: int, eb, recorded: list[_Group], half: float, rt
         below, above = c - float(eb.lower[i]), float(eb.upper[i]) - c
         if not all(math.isfinite(v) for v in (p, c, below, above)) or (below <= 0 and above <= 0):
             continue
-        near = _drawn_near(ax, p, half, vertical)
-        candidates = recorded + ([_Group(near, "points", "points")] if near.size >= 2 else [])
-        groups = [g for g in _groups_centred(candidates, c, "mean") + _groups_centred(candidates, c, "median")
+        near = drawn_near(ax, p, half, vertical)
+        candidates = recorded + ([Group(near, "points", "points")] if near.size >= 2 else [])
+        groups = [g for g in groups_centred(candidates, c, "mean") + groups_centred(candidates, c, "median")
                   if np.ptp(g.values) > 0]  # a group without spread cannot be behind a bar with length
         if not groups:
             continue  # no raw data behind this bar: nothing can be said about it
@@ -824,7 +679,7 @@ def _errorbar_hits(ax: Axes, k: int, eb, recorded: list[_Group], half: float, rt
         sizes.append(n)
         if kind.startswith(_SEM) and n < small:
             values = next(g.values for g in groups if g.values.size == n)
-            if _matched(values, near) < share * n:
+            if matched(values, near) < share * n:
                 sem_hidden.append(n)
     total = len(kinds) + unmatched + ambiguous_group
     if total == 0:
@@ -832,6 +687,9 @@ def _errorbar_hits(ax: Axes, k: int, eb, recorded: list[_Group], half: float, rt
     parts: list[str] = []
     for kind in dict.fromkeys(kinds):
         ns = [s for s, kk in zip(sizes, kinds, strict=True) if kk == kind]
+        if total == 1:
+            parts.append(f"the one shows {_describe(kind)} (n = {ns[0]})")
+            continue
         share_text = f"all {total}" if len(ns) == total else pct(len(ns), total)
         parts.append(f"{share_text} show {_describe(kind)} (n = {', '.join(map(str, ns))})")
     if unmatched:
