@@ -364,3 +364,30 @@ def test_load_pixels_palette_becomes_rgb(tmp_path: Path) -> None:
     path = tmp_path / "p.png"
     img.save(path)
     assert load_pixels(path).shape == (5, 5, 3)  # as matplotlib.testing.compare._load_image converts
+
+
+def test_diff_image_shrinks_but_keeps_one_changed_pixel(tmp_path: Path) -> None:
+    a = np.full((90, 2500, 3), 200, np.uint8)
+    b = a.copy()
+    b[40, 1234] = (230, 200, 200)  # one pixel, +30 in red
+    path = write_diff_image(_png(tmp_path / "c.png", a), _png(tmp_path / "r.png", b), tmp_path / "d.png")
+    assert path is not None
+    with Image.open(path) as img:
+        sheet = np.asarray(img.convert("RGB"))
+    panel_w = -(-2500 // 3)  # 1200-px panel limit → factor 3
+    assert sheet.shape[1] == 3 * panel_w + 32
+    diff_panel = sheet[24 : 24 + 30, 8 + 2 * (panel_w + 8) : 8 + 2 * (panel_w + 8) + panel_w]
+    assert diff_panel[..., 0].max() == 255  # 30 × 10, clipped: still visible after shrinking
+    assert np.count_nonzero(diff_panel.any(axis=-1)) == 1
+
+
+def test_pillow_decompression_bomb_limits(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # Pillow warns above Image.MAX_IMAGE_PIXELS and refuses above twice that (Pillow docs, Image.open).
+    a = _png(tmp_path / "c.png", np.zeros((30, 50, 3), np.uint8))  # 1500 px
+    b = _png(tmp_path / "r.png", np.full((30, 50, 3), 9, np.uint8))
+    monkeypatch.setattr(Image, "MAX_IMAGE_PIXELS", 1000)  # 1500 > 1000: warning only; figproof decides size
+    assert compare_output(a, b, tolerance=0).status == "drift"
+    monkeypatch.setattr(Image, "MAX_IMAGE_PIXELS", 500)  # 1500 > 2 × 500: Pillow refuses to open
+    result = compare_output(a, b, tolerance=0)
+    assert result.status == "too-large"
+    assert write_diff_image(a, b, tmp_path / "d.png") is None

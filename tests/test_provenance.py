@@ -13,7 +13,7 @@ import hashlib
 import json
 import sys
 
-from builders import axes, figure, run, src
+from tests.builders import axes, figure, run, src
 from figproof.compare import OutputComparison
 from figproof.context import RunContext
 from figproof.model import FileEvent

@@ -14,7 +14,7 @@ from types import MappingProxyType
 import numpy as np
 from PIL import Image, PngImagePlugin
 
-from builders import axes, errorbars, figure, points, run, src
+from tests.builders import axes, errorbars, figure, points, run, src
 from figproof.compare import OutputComparison, compare_output
 from figproof.context import Inventory, RunContext
 from figproof.findings import Hit

@@ -265,12 +265,10 @@ def _compare_raster(
             return {**out, "status": f"unreadable-{label}", "message": f"the {label} file cannot be decoded: {exc}"}
     a, b = pixels
     out["total_pixels"] = int(a.shape[0] * a.shape[1])
-    if a.shape == b.shape and np.array_equal(a, b):
-        return {**out, "status": "same", "rms": 0.0, "differing_pixels": 0, "message": "pixels identical"}
+    # Exact equality and the RMS come from one pass over row blocks (no full-size boolean or float temporaries).
     rms, differing = rms_difference(a, b)
     out.update(rms=rms, differing_pixels=differing)
     if differing == 0:
-        # Only possible when one file is RGB and the other RGBA with the same colours under full alpha.
         return {**out, "status": "same", "message": "pixels identical"}
     if tolerance > 0 and rms <= tolerance:
         return {**out, "status": "same", "message": f"RMS {rms:.3g} within tolerance {tolerance:g}"}
@@ -508,22 +506,29 @@ def compare_image_bytes(
     return OutputComparison(**base, **fields)
 
 
-def _panel(pixels: np.ndarray, factor: int) -> Image.Image:
-    img = Image.fromarray(pixels).convert("RGB")
-    if factor > 1:
-        img = img.resize((max(1, img.width // factor), max(1, img.height // factor)), Image.Resampling.BOX)
-    return img
+def _rows_over_white(x: np.ndarray, top: int, bottom: int, width: int) -> np.ndarray:
+    """Rows ``top:bottom`` of image ``x`` as opaque RGB on a white canvas ``width`` wide (page colour)."""
+    out = np.full((bottom - top, width, 3), 255, np.uint8)
+    rows = x[top:min(bottom, x.shape[0])]
+    if rows.shape[0] == 0:
+        return out
+    if rows.shape[-1] == 4:
+        # integer "over" compositing onto white, rounded: (c·a + 255·(255 − a)) / 255
+        alpha = rows[..., 3:4].astype(np.uint32)
+        rgb = (rows[..., :3].astype(np.uint32) * alpha + 255 * (255 - alpha) + 127) // 255
+        rows = rgb.astype(np.uint8)
+    out[: rows.shape[0], : rows.shape[1]] = rows
+    return out
 
 
-def _block_max(diff: np.ndarray, factor: int) -> np.ndarray:
-    # Downscale the difference by taking the maximum of each block so a one-pixel change stays visible.
-    if factor <= 1:
-        return diff
-    h, w = (diff.shape[0] // factor) * factor, (diff.shape[1] // factor) * factor
-    if h == 0 or w == 0:
-        return diff
-    d = diff[:h, :w]
-    return d.reshape(h // factor, factor, w // factor, factor, -1).max(axis=(1, 3))
+def _reduce(block: np.ndarray, factor: int, how: str) -> np.ndarray:
+    if factor == 1:
+        return block
+    h, w = block.shape[0] // factor, block.shape[1] // factor
+    tiles = block.reshape(h, factor, w, factor, block.shape[-1])
+    if how == "max":
+        return tiles.max(axis=(1, 3))
+    return np.rint(tiles.mean(axis=(1, 3))).astype(np.uint8)
 
 
 def write_diff_image(
@@ -534,8 +539,10 @@ def write_diff_image(
     The difference panel is ``|committed − regenerated| × 10`` (clipped to 255), the
     amplification matplotlib's own image tests use; where sizes differ, the images
     are aligned top-left and the area only one of them covers shows as full
-    difference.  Large images are shrunk so each panel is at most 1200 px
-    (block maximum for the difference, so isolated changed pixels stay visible).
+    difference.  Transparent areas are shown over white.  Large images are shrunk
+    so each panel is at most 1200 px: block mean for the two images, block maximum
+    for the difference so that an isolated changed pixel stays visible.  Work is
+    done in bands of rows, so memory stays near the two decoded images.
     Returns the path written, or None when either image cannot be decoded or is too large.
     """
     arrays = []
@@ -547,37 +554,40 @@ def write_diff_image(
                 return None
             if isinstance(source, io.BytesIO):
                 source.seek(0)
-            pixels = load_pixels(source)
+            arrays.append(load_pixels(source))
         except (_Unreadable, _TooLarge):
             return None
-        if pixels.shape[-1] == 4:
-            # Show transparent areas over white, as a page would.
-            alpha = pixels[..., 3:4].astype(np.float64) / 255.0
-            pixels = (pixels[..., :3] * alpha + 255.0 * (1.0 - alpha)).round().astype(np.uint8)
-        arrays.append(pixels)
     a, b = arrays
     height, width = max(a.shape[0], b.shape[0]), max(a.shape[1], b.shape[1])
-    pads = []
-    for x in (a, b):
-        canvas = np.full((height, width, 3), 255, np.uint8)
-        canvas[: x.shape[0], : x.shape[1]] = x
-        pads.append(canvas)
-    diff = pixel_difference(pads[0], pads[1]).astype(np.uint16) * DIFF_GAIN
-    diff = np.clip(diff, 0, 255).astype(np.uint8)
-    covered = np.zeros((height, width), bool)
-    covered[: min(a.shape[0], b.shape[0]), : min(a.shape[1], b.shape[1])] = True
-    diff[~covered] = 255
     factor = max(1, -(-max(height, width) // _DIFF_PANEL_MAX))
-    panels = [_panel(pads[0], factor), _panel(pads[1], factor), Image.fromarray(_block_max(diff, factor))]
+    # pad the canvas to whole blocks; the padding is white in both images, so it shows no difference
+    full_h, full_w = -(-height // factor) * factor, -(-width // factor) * factor
+    common_h, common_w = min(a.shape[0], b.shape[0]), min(a.shape[1], b.shape[1])
+    band = factor * max(1, _ROWS_PER_BLOCK_PIXELS // (full_w * factor))
+    parts: list[list[np.ndarray]] = [[], [], []]
+    for top in range(0, full_h, band):
+        bottom = min(top + band, full_h)
+        ra, rb = _rows_over_white(a, top, bottom, full_w), _rows_over_white(b, top, bottom, full_w)
+        diff = np.abs(ra.astype(np.int16) - rb).astype(np.uint16) * DIFF_GAIN
+        diff = np.minimum(diff, 255).astype(np.uint8)
+        # rows/columns inside the canvas that only one image covers
+        rows = np.arange(top, bottom)
+        one_only = (rows < height)[:, None] & ((rows >= common_h)[:, None] | (np.arange(full_w) >= common_w)[None, :])
+        one_only &= (np.arange(full_w) < width)[None, :]
+        diff[one_only] = 255
+        parts[0].append(_reduce(ra, factor, "mean"))
+        parts[1].append(_reduce(rb, factor, "mean"))
+        parts[2].append(_reduce(diff, factor, "max"))
+    panels = [Image.fromarray(np.concatenate(p, axis=0)) for p in parts]
     gap, header = 8, 16
     pw, ph = panels[0].width, panels[0].height
     sheet = Image.new("RGB", (3 * pw + 4 * gap, ph + header + 2 * gap), (255, 255, 255))
     draw = ImageDraw.Draw(sheet)
-    for i, (panel, title) in enumerate(zip(panels, ("committed", "regenerated", f"difference ×{DIFF_GAIN}"),
+    for i, (panel, title) in enumerate(zip(panels, ("committed", "regenerated", f"difference x{DIFF_GAIN}"),
                                            strict=True)):
         x = gap + i * (pw + gap)
         sheet.paste(panel, (x, header + gap))
-        draw.text((x, 2), title.replace("×", "x"), fill=(0, 0, 0))
+        draw.text((x, 2), title, fill=(0, 0, 0))
     out_png = Path(out_png)
     out_png.parent.mkdir(parents=True, exist_ok=True)
     sheet.save(out_png, format="PNG")
