@@ -42,9 +42,10 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
 
     check = sub.add_parser("check", help="check a repo (default: the current folder)")
-    check.add_argument("path", nargs="?", default=".", help="repo folder to check")
+    check.add_argument("paths", nargs="*", metavar="PATH",
+                       help="repo folder to check (default: .); with --changed-files, the changed files")
     _report_flags(check)
-    check.add_argument("--jobs", type=int, metavar="N", help="scripts run at once (default: config, else CPUs)")
+    _run_flags(check)
 
     demo = sub.add_parser("demo", help="copy the bundled demo lab repo to a temporary folder and check it")
     demo.add_argument("--keep", metavar="DIR", help="copy the demo repo to DIR instead of a temporary folder")
@@ -52,15 +53,42 @@ def build_parser() -> argparse.ArgumentParser:
     sub.add_parser("rules", help="list the rules")
     explain = sub.add_parser("explain", help="why a rule matters, how to fix it, its sources")
     explain.add_argument("rule", help="rule id, e.g. bars-for-continuous")
+
+    accept = sub.add_parser("accept", help="check the repo and accept every finding it has today "
+                                           "(writes the accepted-findings file)")
+    accept.add_argument("path", nargs="?", default=".", help="repo folder (default: .)")
+    accept.add_argument("--jobs", type=int, metavar="N", help="scripts run at once")
+
+    merge = sub.add_parser("merge", help="combine JSON reports of shards into one report with one verdict")
+    merge.add_argument("reports", nargs="+", metavar="REPORT.json", help="JSON reports written by --json")
+    merge.add_argument("--json", metavar="FILE", help="write the merged JSON report")
+    merge.add_argument("--markdown", metavar="FILE", help="write the merged markdown summary")
+    merge.add_argument("--sarif", metavar="FILE", help="write the merged SARIF 2.1.0 log")
+    merge.add_argument("--gitlab", metavar="FILE", help="write a merged GitLab code-quality report")
+    merge.add_argument("--quiet", action="store_true", help="print nothing but errors")
     return parser
 
 
 def _report_flags(p: argparse.ArgumentParser) -> None:
     p.add_argument("--json", metavar="FILE", help="write the JSON report (schema 1)")
     p.add_argument("--markdown", metavar="FILE", help="write the markdown summary")
+    p.add_argument("--sarif", metavar="FILE", help="write a SARIF 2.1.0 log (for code-scanning dashboards)")
+    p.add_argument("--gitlab", metavar="FILE", help="write a GitLab code-quality report")
     p.add_argument("--images", metavar="DIR", help="write figure images for findings (simulated views, diffs)")
     p.add_argument("--timings", action="store_true", help="add run times to the reports (they then vary)")
-    p.add_argument("--quiet", action="store_true", help="print nothing but errors")
+    noise = p.add_mutually_exclusive_group()
+    noise.add_argument("--quiet", action="store_true", help="print nothing but errors")
+    noise.add_argument("--verbose", action="store_true", help="print a line per script as it finishes")
+
+
+def _run_flags(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--jobs", type=int, metavar="N", help="scripts run at once (default: config, else CPUs)")
+    p.add_argument("--shard", metavar="K/N", help="check only the K-th of N stable shares of the scripts")
+    p.add_argument("--changed-files", action="store_true",
+                   help="the PATHs are changed files (as pre-commit passes them): check the figure scripts "
+                        "among them and the scripts that read them")
+    p.add_argument("--changed-since", metavar="REF",
+                   help="check only scripts changed since the git REF, or that read a file changed since it")
 
 
 def main(argv: Sequence[str] | None = None) -> int:
@@ -74,7 +102,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         parser.print_help()
         return ExitCode.USAGE
     try:
-        return {"check": cmd_check, "demo": cmd_demo, "rules": cmd_rules, "explain": cmd_explain}[args.command](args)
+        commands = {"check": cmd_check, "demo": cmd_demo, "rules": cmd_rules, "explain": cmd_explain,
+                    "accept": cmd_accept, "merge": cmd_merge}
+        return commands[args.command](args)
     except UsageError as exc:
         print(f"figproof: {exc}", file=sys.stderr)
         return ExitCode.USAGE
@@ -121,28 +151,52 @@ def cmd_explain(args: argparse.Namespace) -> int:
     return ExitCode.PASSED
 
 
-def run_check(path: Path, args: argparse.Namespace, *, shown_root: str | None = None) -> int:
-    """Check ``path`` and write the reports asked for in ``args``."""
+def _one_line_errors() -> tuple[type[Exception], ...]:
     from figproof.accept import AcceptedFileError
     from figproof.config import ConfigError
     from figproof.discover import DiscoveryError
+    from figproof.gitrepo import GitError
+    from figproof.shard import ShardError
+
+    return (ConfigError, DiscoveryError, AcceptedFileError, GitError, ShardError)
+
+
+def _progress(args: argparse.Namespace):  # noqa: ANN202 - returns a callback or None
+    from figproof.outputs import progress_printer
+
+    return progress_printer(quiet=args.quiet, verbose=getattr(args, "verbose", False))
+
+
+def do_check(path: Path, args: argparse.Namespace, **option_overrides: object):  # noqa: ANN201
+    """Run the pipeline for ``path`` with the command line's options; returns a Checked."""
     from figproof.pipeline import CheckOptions, check
-    from figproof.outputs import write_reports
 
     if not path.exists():
         raise UsageError(f"{path}: no such file or folder")
-    skip = tuple(_inside(path, Path(p)) for p in (args.images, args.json, args.markdown) if p)
-    options = CheckOptions(jobs=getattr(args, "jobs", None), skip_copy=tuple(s for s in skip if s))
+    skip = tuple(_inside(path, Path(p)) for p in (getattr(args, "images", None), getattr(args, "json", None),
+                                                   getattr(args, "markdown", None)) if p)
+    options = CheckOptions(jobs=getattr(args, "jobs", None), skip_copy=tuple(s for s in skip if s),
+                           shard=getattr(args, "shard", None), changed_since=getattr(args, "changed_since", None),
+                           **option_overrides)  # type: ignore[arg-type]
     try:
-        checked = check(path, options)
-    except (ConfigError, DiscoveryError, AcceptedFileError) as exc:
+        return check(path, options, progress=_progress(args))
+    except _one_line_errors() as exc:
         raise UsageError(str(exc)) from None
+
+
+def run_check(path: Path, args: argparse.Namespace, *, shown_root: str | None = None,
+              changed: tuple[str, ...] | None = None) -> int:
+    """Check ``path`` and write the reports asked for in ``args``."""
+    from figproof.outputs import final_line, write_reports
+
+    checked = do_check(path, args, changed=changed)
     try:
         text = write_reports(checked, args, shown_root=shown_root)
     finally:
         shutil.rmtree(checked.artifacts, ignore_errors=True)
     if not args.quiet:
         print(text)
+        print(final_line(checked.result), file=sys.stderr)
     return ExitCode.PASSED if checked.result.summary.passed else ExitCode.FAILED
 
 
@@ -154,7 +208,25 @@ def _inside(root: Path, p: Path) -> str | None:
 
 
 def cmd_check(args: argparse.Namespace) -> int:
-    return run_check(Path(args.path), args)
+    if args.changed_files:
+        from figproof.config import ConfigError, load_config
+
+        try:
+            root = load_config(Path(".")).root
+        except ConfigError as exc:
+            raise UsageError(str(exc)) from None
+        changed = tuple(_repo_relative(root, Path(p)) for p in args.paths)
+        return run_check(Path("."), args, changed=tuple(c for c in changed if c))
+    if len(args.paths) > 1:
+        raise UsageError("check takes one repo folder (use --changed-files to pass changed files)")
+    return run_check(Path(args.paths[0] if args.paths else "."), args)
+
+
+def _repo_relative(root: Path, p: Path) -> str | None:
+    try:
+        return p.resolve().relative_to(root.resolve()).as_posix()
+    except ValueError:
+        return None
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
@@ -166,12 +238,48 @@ def cmd_demo(args: argparse.Namespace) -> int:
     args.json = str(reports / "figproof.json")
     args.markdown = str(reports / "summary.md")
     args.images = str(reports / "images")
+    args.sarif = str(reports / "figproof.sarif")
+    args.gitlab = None
     args.quiet = False
+    args.verbose = False
     args.timings = False
     code = run_check(repo, args, shown_root="demo-lab")
     print(f"The demo lab repo is in {repo}; it is meant to fail (exit code {int(code)}).")
-    print(f"Reports: {reports}/summary.md, {reports}/figproof.json, images in {reports}/images")
+    print(f"Reports: {reports}/summary.md, {reports}/figproof.json, {reports}/figproof.sarif, "
+          f"images in {reports}/images")
     return ExitCode.PASSED
+
+
+def cmd_accept(args: argparse.Namespace) -> int:
+    from figproof.accept import write_accepted
+
+    args.quiet, args.verbose = False, False
+    checked = do_check(Path(args.path), args)
+    shutil.rmtree(checked.artifacts, ignore_errors=True)
+    target = checked.config.accepted_path()
+    entries = write_accepted(checked.result.findings, target)
+    print(f"figproof: {target.name} now accepts {len(entries)} finding(s); commit it, and only new problems "
+          f"will fail the build")
+    return ExitCode.PASSED
+
+
+def cmd_merge(args: argparse.Namespace) -> int:
+    from figproof.outputs import write_merged
+    from figproof.shard import ShardError
+
+    texts = []
+    for name in args.reports:
+        try:
+            texts.append(Path(name).read_text(encoding="utf-8"))
+        except OSError as exc:
+            raise UsageError(f"{name}: cannot read the report ({exc.strerror})") from None
+    try:
+        text, passed = write_merged(texts, args)
+    except ShardError as exc:
+        raise UsageError(str(exc)) from None
+    if not args.quiet:
+        print(text)
+    return ExitCode.PASSED if passed else ExitCode.FAILED
 
 
 if __name__ == "__main__":  # pragma: no cover

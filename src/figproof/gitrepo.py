@@ -61,4 +61,32 @@ def tracked_files(root: Path) -> list[str] | None:
     return sorted({n for n in names if (root / n).is_file()})
 
 
-__all__ = ["toplevel", "tracked_files"]
+class GitError(Exception):
+    """A git question that git could not answer; the message is one line."""
+
+
+def changed_since(root: Path, ref: str) -> list[str]:
+    """Files under ``root`` that differ from the git ``ref`` (committed, staged or not), plus untracked ones.
+
+    Raises
+    ------
+    GitError
+        When ``root`` is not a git work tree or git does not know ``ref``.
+    """
+    if toplevel(root) is None:
+        raise GitError(f"{root}: --changed-since needs a git work tree")
+    if _git(root, "rev-parse", "--verify", "--quiet", f"{ref}^{{commit}}") is None:
+        raise GitError(f"unknown git ref {ref!r} (try a branch, a tag or a commit id)")
+    diff = _git(root, "diff", "-z", "--name-only", "--relative", ref, "--") or b""
+    untracked = _git(root, "ls-files", "-z", "--others", "--exclude-standard") or b""
+    names = {os.fsdecode(raw) for raw in (diff + b"\0" + untracked).split(b"\0") if raw}
+    return sorted(names)
+
+
+def head_commit(root: Path) -> str | None:
+    """The commit id of HEAD, or None outside a git work tree."""
+    out = _git(root, "rev-parse", "HEAD")
+    return os.fsdecode(out).strip() if out else None
+
+
+__all__ = ["GitError", "changed_since", "head_commit", "toplevel", "tracked_files"]

@@ -1,17 +1,27 @@
-"""Write the reports a check was asked for: files, images, and the CI job summary.
+"""Write the reports a check was asked for: files, images, the CI job summary, terminal progress.
 
 Reporters in :mod:`figproof.report` render text; this module puts it where
 the user asked (and only there: never into the checked repo unless a path
-given on the command line points into it).
+given on the command line points into it).  It reads the environment
+variables of the CI conventions it follows: GITHUB_ACTIONS,
+GITHUB_STEP_SUMMARY and NO_COLOR.
 """
 
 from __future__ import annotations
 
 import argparse
+import json
 import os
+import sys
+import time
+from collections.abc import Callable
 from pathlib import Path
+from typing import Any, TextIO
 
+from figproof.findings import CheckResult, Finding, Summary
+from figproof.model import ScriptRun
 from figproof.pipeline import Checked
+from figproof.report import github, gitlab, sarif
 from figproof.report import json as json_report
 from figproof.report import markdown
 
@@ -43,6 +53,13 @@ def write_reports(checked: Checked, args: argparse.Namespace, *, shown_root: str
         _write(Path(args.markdown), text)
     if args.json:
         _write(Path(args.json), json_report.render(result, timings=args.timings))
+    if getattr(args, "sarif", None):
+        _write(Path(args.sarif), sarif.render(result, tuple(by_id().values())))
+    if getattr(args, "gitlab", None):
+        _write(Path(args.gitlab), gitlab.render(result))
+    if os.environ.get("GITHUB_ACTIONS") == "true" and not args.quiet:
+        for line in github.annotations(result):
+            print(line)
     summary = step_summary_path()
     if summary is not None:
         with open(summary, "a", encoding="utf-8") as fh:
@@ -85,3 +102,70 @@ def write_images(checked: Checked, folder: Path, relative_to: Path | None) -> di
                 continue
             links[fig.id] = _link(out, relative_to)
     return links
+
+
+def use_colour(stream: TextIO) -> bool:
+    """Colour only on a terminal, and never when NO_COLOR is set (https://no-color.org)."""
+    return stream.isatty() and not os.environ.get("NO_COLOR")
+
+
+def final_line(result: CheckResult) -> str:
+    """The one-line verdict printed to stderr after the summary."""
+    s = result.summary
+    text = (f"figproof: {'passed' if s.passed else 'FAILED'} ({s.errors} errors, {s.warnings} warnings, "
+            f"{s.notes} notes, {s.accepted} accepted)")
+    if use_colour(sys.stderr):
+        text = f"\033[{32 if s.passed else 31}m{text}\033[0m"
+    return text
+
+
+def progress_printer(*, quiet: bool, verbose: bool,
+                     stream: TextIO | None = None) -> Callable[[ScriptRun, int, int], None] | None:
+    """A progress callback: an updating line on a terminal, a line per script with --verbose, else nothing."""
+    out = stream or sys.stderr
+    if quiet or not (verbose or out.isatty()):
+        return None
+    started = time.monotonic()
+    live = out.isatty() and not verbose
+
+    def report(run: ScriptRun, done: int, total: int) -> None:
+        elapsed = time.monotonic() - started
+        line = f"[{done}/{total}] {run.path}: {run.status} ({elapsed:.0f} s elapsed)"
+        if live:
+            out.write("\r\033[K" + line + ("\n" if done == total else ""))
+        else:
+            out.write(line + "\n")
+        out.flush()
+
+    return report
+
+
+def write_merged(texts: list[str], args: argparse.Namespace) -> tuple[str, bool]:
+    """Merge shard reports and write the requested outputs; return the markdown and the verdict."""
+    from figproof.rules import by_id
+    from figproof.shard import merge_reports
+
+    merged = merge_reports(texts)
+    result = result_from_json(merged)
+    text = markdown.render(result, rule_summaries={rid: r.summary for rid, r in by_id().items()})
+    text += f"\nMerged from {len(texts)} reports; per-script details are in the shards' JSON reports.\n"
+    if args.json:
+        _write(Path(args.json), json.dumps(merged, sort_keys=True, allow_nan=False, indent=2) + "\n")
+    if args.markdown:
+        _write(Path(args.markdown), text)
+    if args.sarif:
+        _write(Path(args.sarif), sarif.render(result, tuple(by_id().values())))
+    if args.gitlab:
+        _write(Path(args.gitlab), gitlab.render(result))
+    return text, result.summary.passed
+
+
+def result_from_json(data: dict[str, Any]) -> CheckResult:
+    """A CheckResult without run details, rebuilt from a (merged) JSON report."""
+    keys = set(Finding.__dataclass_fields__)
+    findings = tuple(Finding.from_json({k: v for k, v in f.items() if k in keys}) for f in data["findings"])
+    s = data["summary"]
+    summary = Summary(scripts=s["scripts"], figures=s["figures"], errors=s["errors"], warnings=s["warnings"],
+                      notes=s["notes"], accepted=s.get("accepted", 0), passed=s["passed"])
+    return CheckResult(root=data.get("root", "."), version=data["tool"]["version"], runs=(), findings=findings,
+                       summary=summary, fail_on=data.get("fail_on", "error"), notes=tuple(data.get("notes", [])))

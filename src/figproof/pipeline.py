@@ -9,7 +9,7 @@ from __future__ import annotations
 import tempfile
 from collections.abc import Callable
 from dataclasses import dataclass
-from pathlib import Path
+from pathlib import Path, PurePosixPath
 
 from figproof import __version__, rules
 from figproof.accept import (
@@ -25,8 +25,10 @@ from figproof.context import Inventory, RunContext
 from figproof.discover import choose_working_dir, discover
 from figproof.execute import Options, Runner, Task, execute_all
 from figproof.findings import CheckResult, Finding
+from figproof.gitrepo import changed_since
 from figproof.model import ScriptRun
 from figproof.policy import summarise
+from figproof.shard import select_shard
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -36,6 +38,9 @@ class CheckOptions:
     artifacts: Path | None = None  # where run records go (a temporary folder when None)
     jobs: int | None = None
     scripts: tuple[str, ...] | None = None  # restrict to these repo-relative scripts
+    changed: tuple[str, ...] | None = None  # check only scripts among / reading these repo-relative files
+    changed_since: str | None = None  # a git ref: check only what changed since it
+    shard: str | None = None  # "K/N"
     skip_copy: tuple[str, ...] = ()
 
 
@@ -56,6 +61,42 @@ def plan(config: Config, inventory: Inventory, only: tuple[str, ...] | None = No
     return [Task(script=s, working_dir=choose_working_dir(config.root, s, config.working_dir)) for s in scripts]
 
 
+def select_scripts(config: Config, inventory: Inventory, options: CheckOptions) -> tuple[str, ...] | None:
+    """The scripts this check runs (None: all), after --changed-files / --changed-since and --shard."""
+    chosen: list[str] | None = list(options.scripts) if options.scripts is not None else None
+    changed = options.changed
+    if options.changed_since is not None:
+        changed = tuple(changed_since(config.root, options.changed_since)) + tuple(changed or ())
+    if changed is not None:
+        picked = scripts_touched_by(config.root, inventory.scripts, changed)
+        chosen = [s for s in picked if chosen is None or s in chosen]
+    if options.shard is not None:
+        chosen = select_shard(chosen if chosen is not None else list(inventory.scripts), options.shard)
+    return None if chosen is None else tuple(chosen)
+
+
+def scripts_touched_by(root: Path, scripts: tuple[str, ...], changed: tuple[str, ...]) -> list[str]:
+    """Scripts that changed, or whose code names a changed file (by its path or its file name).
+
+    Reading the script's text is a selection heuristic only; what a script really read is
+    recorded when it runs.
+    """
+    changed_set = set(changed)
+    data = [c for c in changed_set if c not in scripts]
+    picked = []
+    for script in scripts:
+        if script in changed_set:
+            picked.append(script)
+            continue
+        try:
+            text = (root / script).read_text(encoding="utf-8", errors="replace")
+        except OSError:
+            continue
+        if any(d in text or PurePosixPath(d).name in text for d in data):
+            picked.append(script)
+    return picked
+
+
 def check(path: Path, options: CheckOptions | None = None, *, runner: Runner | None = None,
           progress: Callable[[ScriptRun, int, int], None] | None = None) -> Checked:
     """Check the repo at ``path``.
@@ -69,7 +110,7 @@ def check(path: Path, options: CheckOptions | None = None, *, runner: Runner | N
     config = load_config(path)
     inventory = discover(config)
     artifacts = options.artifacts or Path(tempfile.mkdtemp(prefix="figproof-run-"))
-    tasks = plan(config, inventory, options.scripts)
+    tasks = plan(config, inventory, select_scripts(config, inventory, options))
     exec_options = Options(root=config.root, artifacts=artifacts, timeout=config.timeout,
                            memory_limit=config.memory_limit, network=config.network,
                            jobs=options.jobs or config.jobs, skip_copy=options.skip_copy)
