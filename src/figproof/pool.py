@@ -67,7 +67,8 @@ class WarmPool:
 
     Start it with :meth:`start` (False when fork is unavailable or the server does not come up: use
     :class:`figproof.execute.FreshInterpreter` then) and stop it with :meth:`close`; also a context manager.
-    If the server dies during a check, the affected and all later scripts run in fresh interpreters.
+    If the server dies during a check, the scripts it was running run again in fresh interpreters and the
+    next script starts a new server.
     """
 
     name = "warm-pool"
@@ -83,35 +84,48 @@ class WarmPool:
         self._ready = threading.Event()
         self._alive = False
         self._reader: threading.Thread | None = None
+        self._start_lock = threading.Lock()
+        self._gave_up = False  # the server could not start once: do not retry for every script
         self._fallback = FreshInterpreter(self.python)
 
     # ---- life cycle ------------------------------------------------------
 
     def start(self) -> bool:
-        """Start the server; True when it is ready to fork children."""
-        if self._alive:
+        """Start the server (again, if it died); True when it is ready to fork children."""
+        with self._start_lock:
+            if self._alive:
+                return True
+            if self._gave_up:
+                return False
+            if self._proc is not None:
+                self.close()  # a server that died: reap it and its reader before starting another
+            if os.name != "posix" or not hasattr(os, "fork") or sys.platform == "darwin":
+                # macOS: system frameworks are not fork-safe once loaded; the fresh interpreter is the safe mode
+                self._gave_up = True
+                return False
+            if not self._spawn():
+                self._gave_up = True
+                self.close()
+                return False
             return True
-        if os.name != "posix" or not hasattr(os, "fork") or sys.platform == "darwin":
-            # macOS: system frameworks are not fork-safe once loaded, so the fresh interpreter is the safe mode
-            return False
+
+    def _spawn(self) -> bool:
         self._tmp = Path(tempfile.mkdtemp(prefix="figproof-pool-"))
         mplconfig = self._tmp / "mplconfig"
         mplconfig.mkdir()
+        self._ready = threading.Event()
         try:
             with open(self._tmp / "server-stderr.txt", "wb") as err:
                 self._proc = subprocess.Popen([self.python, "-m", "figproof.pool"], cwd=str(self._tmp),
                                               stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=err,
                                               env=child_env(mplconfig), start_new_session=True)
         except OSError:
-            self._cleanup()
             return False
         self._alive = True
-        self._reader = threading.Thread(target=self._read, name="figproof-pool-reader", daemon=True)
+        self._reader = threading.Thread(target=self._read, args=(self._proc,), name="figproof-pool-reader",
+                                        daemon=True)
         self._reader.start()
-        if not self._ready.wait(self.start_timeout) or not self._alive:
-            self.close()
-            return False
-        return True
+        return self._ready.wait(self.start_timeout) and self._alive
 
     def close(self) -> None:
         """Stop the server (it kills any child still running) and wait for it; safe to call twice."""
@@ -133,6 +147,8 @@ class WarmPool:
         if self._reader is not None:
             self._reader.join(timeout=5)
             self._reader = None
+        if proc is not None and proc.stdout is not None:
+            proc.stdout.close()
         self._alive = False
         self._cleanup()
 
@@ -203,9 +219,8 @@ class WarmPool:
                 raise PoolLost(f"the worker pool is not running: {exc}") from exc
         return pending
 
-    def _read(self) -> None:
-        proc = self._proc
-        stream: IO[bytes] | None = proc.stdout if proc is not None else None
+    def _read(self, proc: subprocess.Popen[bytes]) -> None:
+        stream: IO[bytes] | None = proc.stdout
         if stream is None:
             return
         for raw in stream:
