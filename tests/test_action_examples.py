@@ -26,7 +26,7 @@ ROOT = Path(__file__).resolve().parents[1]
 EXAMPLES = ROOT / "action_examples"
 HOOKS = ROOT / ".pre-commit-hooks.yaml"
 
-# Subcommands and long options the examples may use (used while figproof.cli has no build_parser).
+# A fixed flag table for testing the command scanner itself; the examples are checked against the real parser.
 FALLBACK_FLAGS: dict[str, set[str]] = {
     "check": {"--json", "--sarif", "--markdown", "--images", "--gitlab", "--changed-files", "--changed-since",
               "--shard", "--quiet", "--verbose"},
@@ -37,29 +37,16 @@ FALLBACK_FLAGS: dict[str, set[str]] = {
     "explain": set(),
 }
 
-# Flags issue 6 adds that the real parser may not have yet.  The examples may use them; once the
-# CLI has them all, test_pending_flags_are_wired passes and fails as strict xfail: empty this dict.
-PENDING_FLAGS: dict[str, set[str]] = {
-    "check": {"--sarif", "--gitlab", "--changed-files", "--changed-since", "--shard"},
-    "merge": {"--json", "--sarif", "--markdown", "--gitlab"},
-    "accept": set(),
-}
-
 COMMAND_KEYS = {"run", "script", "before_script", "after_script", "entry"}
 _OPERATORS = {"||", "&&", ";", "|", "&"}
 
 
 def known_flags() -> dict[str, set[str]]:
-    """Subcommand -> long options, from the real parser when there is one."""
-    if importlib.util.find_spec("figproof.cli") is None:
-        return FALLBACK_FLAGS
-    cli = importlib.import_module("figproof.cli")
-    build = getattr(cli, "build_parser", None)
-    if build is None:
-        return FALLBACK_FLAGS
-    parser = build()
+    """Subcommand -> long options, from figproof's real argument parser."""
+    from figproof.cli import build_parser
+
     found: dict[str, set[str]] = {}
-    for action in parser._actions:
+    for action in build_parser()._actions:
         if isinstance(action, argparse._SubParsersAction):
             for name, sub in action.choices.items():
                 found[name] = {o for a in sub._actions for o in a.option_strings if o.startswith("--")}
@@ -129,10 +116,7 @@ def test_examples_exist() -> None:
 def test_commands_use_known_subcommands_and_flags(path: Path) -> None:
     commands = _shell_commands(path.read_text("utf-8")) if path.suffix == ".sh" else _yaml_commands(_load(path))
     assert commands, f"{path.name} names no figproof command"
-    flags = known_flags()
-    for sub, pending in PENDING_FLAGS.items():
-        flags[sub] = flags.get(sub, set()) | pending
-    assert _unknown(commands, flags) == [], path.name
+    assert _unknown(commands, known_flags()) == [], path.name
 
 
 def _unknown(commands: list[list[str]], flags: dict[str, set[str]]) -> list[str]:
@@ -152,13 +136,6 @@ def test_checker_catches_unknown_names() -> None:
     commands = _shell_commands("x=1; figproof check --json=a.json --bogus . && figproof frobnicate || true\n")
     assert [c[1] for c in commands] == ["check", "frobnicate"]
     assert _unknown(commands, FALLBACK_FLAGS) == ["figproof check --bogus", "subcommand 'frobnicate' in figproof frobnicate"]
-
-
-@pytest.mark.xfail(strict=True, reason="issue 6 flags not yet in figproof.cli; empty PENDING_FLAGS when they are")
-def test_pending_flags_are_wired() -> None:
-    flags = known_flags()
-    missing = {sub: pending - flags.get(sub, set()) for sub, pending in PENDING_FLAGS.items()}
-    assert not any(missing.values()), missing
 
 
 def test_github_workflow_uploads_what_it_writes() -> None:
