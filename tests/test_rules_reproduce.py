@@ -248,6 +248,17 @@ def test_unseeded_jitter_is_named() -> None:
     assert context.nondeterministic() == {"strip.py": ("figures/strip.png",)}
 
 
+def test_rendering_comparison_keyed_by_figure_id() -> None:
+    y = [2.1, 2.4, 1.9]
+    first, second = _strip([0.05, -0.02, 0.08], y), _strip([0.01, -0.02, 0.03], y)
+    c = drift("strip.py#1", rms=2.0, differing_pixels=300, committed_version=None)
+    found = hits(reproduce.output_nondeterministic, first,
+                 ctx(first, second_runs={"strip.py": second}, rerun_comparisons={"strip.py": (c,)}))
+    assert len(found) == 1  # one finding: the rendering and the marks are the same figure
+    assert found[0].message.startswith("figure strip.py#1 differs between two runs of strip.py")
+    assert "unseeded random jitter" in found[0].message
+
+
 def test_nondeterministic_unsaved_figure_and_bootstrap() -> None:
     def one(upper: float) -> ScriptRun:
         ax = axes(errorbars=[errorbars([0, 1], [2.0, 3.0], [0.5, upper])])

@@ -48,7 +48,9 @@ class RunContext:
     re-executed cell's figures, keyed by notebook path.
     ``second_runs`` / ``rerun_comparisons``: with ``--twice``, the second run of
     each script and the comparison of each output of the first run with the same
-    output of the second run (first run as "committed"), keyed by script path.
+    output of the second run (first run as "committed"), keyed by script path; a
+    comparison's ``path`` is the saved file's repo path, or the figure id when it
+    compares the two runs' renderings of a figure that was not saved.
     ``running_version``: the matplotlib version the children ran with.
     """
 

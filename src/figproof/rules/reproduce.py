@@ -489,11 +489,14 @@ def output_nondeterministic(run: ScriptRun, context: RunContext, knobs: Knobs) -
     figures2 = {f.id: f for f in second.figures} if second is not None else {}
     differences = {f.id: mark_differences(f, figures2[f.id]) for f in run.figures if f.id in figures2}
     by_output = {path: f for f in run.figures for path in f.outputs}
+    by_id = {f.id: f for f in run.figures}
     reported: set[str] = set()
     for c in compared:
         if c.status in ("same", "missing-committed", "unreadable-committed", "unreadable-regenerated"):
             continue
-        fig = by_output.get(c.path)
+        # a comparison is of a saved file (keyed by its path) or of a figure's rendering (keyed by figure id)
+        fig = by_output.get(c.path) or by_id.get(c.path)
+        label = f"figure {c.path}" if c.path in by_id else c.path
         phrases = differences.get(fig.id, []) if fig is not None else []
         if fig is not None:
             reported.add(fig.id)
@@ -503,7 +506,7 @@ def output_nondeterministic(run: ScriptRun, context: RunContext, knobs: Knobs) -
             detail = f"{_size_text(c.committed_size)} in one run, {_size_text(c.regenerated_size)} in the other"
         else:
             detail = _rms_text(c) or "its content differs after dropping dates and ids"
-        yield Hit(message=f"{c.path} differs between two runs of {run.path} ({detail}){_cause(phrases)}",
+        yield Hit(message=f"{label} differs between two runs of {run.path} ({detail}){_cause(phrases)}",
                   source=fig.source if fig is not None and fig.source is not None else script, key=c.path)
     if second is not None and len(run.figures) != len(second.figures):
         yield Hit(message=f"{run.path} creates {len(run.figures)} figures in one run and {len(second.figures)} "
