@@ -373,6 +373,7 @@ def summary_hides_small_n(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
         if not rectilinear(ax):
             continue
         half = half_width(_positions(ax))
+        found: dict[tuple[str, str], list[tuple[_Summary, int, str]]] = {}
         for s in _summaries(figure, ax):
             if s.n is None or s.n <= 0 or s.n >= note_n:
                 continue
@@ -383,10 +384,31 @@ def summary_hides_small_n(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
             confidence = "certain" if s.n < 5 else "likely" if s.n < small else "possible"
             if s.inferred:  # n came from matching a bar height to a loaded group's mean
                 confidence = "likely" if confidence == "certain" else "possible"
-            yield Hit(message=f"the {s.kind} at {where(s.vertical, s.position)} summarises n = {s.n} values and draws "
-                              f"{pct(drawn, s.n)} of them as points",
-                      source=s.source, axes=ax.index, severity=severity, confidence=confidence,
-                      key=f"{s.kind}:{fmt(s.position)}")
+            found.setdefault((s.kind, severity, confidence), []).append((s, drawn, confidence))
+        # one finding per kind of summary, severity and confidence in an axes, not one per box
+        for (kind, severity, _), items in found.items():
+            yield _small_n_hit(ax.index, kind, severity, items)
+
+
+def _small_n_hit(axes: int, kind: str, severity: str, items: list[tuple[_Summary, int, str]]) -> Hit:
+    confidence = items[0][2]
+    first = items[0][0]
+    if len(items) == 1:
+        s, drawn, _ = items[0]
+        message = (f"the {kind} at {where(s.vertical, s.position)} summarises n = {s.n} values and draws "
+                   f"{pct(drawn, s.n)} of them as points")
+    else:
+        axis = "x" if first.vertical else "y"
+        places = ", ".join(fmt(s.position) for s, _, _ in items)
+        sizes = sorted({s.n for s, _, _ in items if s.n is not None})
+        n_text = f"n = {sizes[0]}" if len(sizes) == 1 else f"n = {sizes[0]} to {sizes[-1]}"
+        total = sum(s.n or 0 for s, _, _ in items)
+        drawn = sum(d for _, d, _ in items)
+        plural = "es" if kind == "box" else "s"
+        message = (f"{len(items)} {kind}{plural} (at {axis} = {places}) summarise {n_text} values each and draw "
+                   f"{pct(drawn, total)} of their values as points")
+    return Hit(message=message, source=first.source, axes=axes, severity=severity, confidence=confidence,
+               key=f"{kind}:{severity}:" + ",".join(fmt(s.position) for s, _, _ in items))
 
 
 def _has_violin(ax: Axes, box: Box, half: float) -> bool:
