@@ -98,6 +98,16 @@ def test_drift_saved_twice_note_and_outside_paths_ignored() -> None:
     assert "(lines 5, 8)" in found[0].message and found[0].severity == "note"
 
 
+def test_drift_pillow_write_counts_as_output() -> None:
+    # Pillow's Image.save opens the file for writing: the child records a "write" of an image path
+    events = (FileEvent(action="write", path="figures/photo_panel.png", source=src(6)),
+              FileEvent(action="write", path="data/summary.csv", source=src(7)))
+    r = run(path="fig.py", events=events)
+    context = ctx(r, comparisons={"figures/photo_panel.png": drift("figures/photo_panel.png"),
+                                  "data/summary.csv": drift("data/summary.csv", kind="other")})
+    assert [h.key for h in hits(reproduce.figure_drift, r, context)] == ["figures/photo_panel.png:stale"]
+
+
 def test_drift_notebook_cell() -> None:
     r = run(path="analysis/fig2.ipynb")
     c = drift("analysis/fig2.ipynb", cell=4, output=0)

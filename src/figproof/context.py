@@ -7,8 +7,8 @@ from dataclasses import dataclass, field
 from pathlib import PurePosixPath
 from types import MappingProxyType
 
-from figproof.compare import OutputComparison
-from figproof.model import ScriptRun
+from figproof.compare import OutputComparison, kind_of
+from figproof.model import FileEvent, ScriptRun
 
 
 def _empty_mapping() -> Mapping:
@@ -21,6 +21,13 @@ def is_repo_path(path: str) -> bool:
         return False
     pure = PurePosixPath(path)
     return not pure.is_absolute() and ".." not in pure.parts
+
+
+def is_figure_output(ev: FileEvent) -> bool:
+    """A savefig output, or any other write of an image/PDF/SVG/PS file (e.g. Pillow ``Image.save``)."""
+    if not ev.inside_repo or not is_repo_path(ev.path):
+        return False
+    return ev.action == "save" or (ev.action == "write" and kind_of(ev.path) != "other")
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -75,7 +82,7 @@ class RunContext:
         out: dict[str, list[str]] = {}
         for run in self.runs:
             for ev in run.events:
-                if ev.action in ("save", "write") and ev.inside_repo:
+                if ev.action in ("save", "write") and ev.inside_repo and is_repo_path(ev.path):
                     scripts = out.setdefault(ev.path, [])
                     if run.path not in scripts:
                         scripts.append(run.path)

@@ -14,7 +14,7 @@ from importlib import metadata
 from typing import Any
 
 from figproof import __version__
-from figproof.context import RunContext, is_repo_path
+from figproof.context import RunContext, is_figure_output, is_repo_path
 from figproof.model import FileEvent, ScriptRun, Source
 
 MANIFEST_SCHEMA = 1
@@ -119,7 +119,7 @@ def build_manifest(
         owner = {p: f.id for f in run.figures for p in f.outputs}
         outputs: list[str] = []
         for ev in run.events:
-            if ev.action != "save" or not ev.inside_repo or not is_repo_path(ev.path):
+            if not is_figure_output(ev):
                 continue
             outputs.append(ev.path)
             cell = ev.source.cell if ev.source is not None else None

@@ -13,7 +13,7 @@ from collections.abc import Iterator, Sequence
 import numpy as np
 
 from figproof.compare import OutputComparison
-from figproof.context import RunContext, is_repo_path
+from figproof.context import RunContext, is_figure_output, is_repo_path
 from figproof.findings import Hit
 from figproof.model import FigureModel, FileEvent, ScriptRun, Source
 from figproof.rules.base import Knob, Knobs, pct, rule
@@ -50,10 +50,10 @@ def _writers(context: RunContext) -> dict[str, list[int]]:
 
 
 def _saves(run: ScriptRun) -> dict[str, list[FileEvent]]:
-    """Repo-relative outputs of a run (save events, then figure outputs) in first-save order."""
+    """Repo-relative figure outputs of a run (save events, then figure outputs) in first-save order."""
     out: dict[str, list[FileEvent]] = {}
     for ev in run.events:
-        if ev.action == "save" and ev.inside_repo and is_repo_path(ev.path):
+        if is_figure_output(ev):
             out.setdefault(ev.path, []).append(ev)
     for fig in run.figures:
         for path in fig.outputs:
