@@ -406,3 +406,11 @@ def test_colour_modules_do_not_import_matplotlib() -> None:
     code = "import sys, figproof.rules.colour, figproof.colour_science; print('matplotlib' in sys.modules)"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "False"
+
+
+def test_one_finding_per_map() -> None:
+    """jet has several defects (Borland & Taylor 2007, from memory): the reader gets one finding naming them."""
+    fig = figure(axes(colormaps=[cmap_model("jet")]))
+    [hit] = list(colour.colormap_not_uniform.check(fig, colour.colormap_not_uniform.defaults()))
+    assert hit.message.startswith("colour map 'jet' (used by an image)")
+    assert hit.severity is None  # the rule's default, error

@@ -151,9 +151,18 @@ def colormap_not_uniform(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
         if digest in reported:
             continue
         reported.add(digest)
-        for p in judge_cached(samples.tobytes(), samples.shape[0], params):
-            yield Hit(message=_map_message(cm, p), source=cm.source, axes=ax.index,
-                      severity=None if p.severity == "error" else p.severity, key=f"map:{digest}:{p.kind}")
+        problems = list(judge_cached(samples.tobytes(), samples.shape[0], params))
+        # one finding per map: its errors, or (when it has none) its warnings; a map that fails
+        # outright needs replacing, so its lesser defects would only add noise
+        worst = [p for p in problems if p.severity == "error"] or problems
+        if not worst:
+            continue
+        texts = [_map_message(cm, p) for p in worst]
+        head = texts[0][: texts[0].index(")") + 1]
+        message = "; and it ".join([texts[0]] + [t[len(head) + 1:] for t in texts[1:]])
+        yield Hit(message=message, source=cm.source, axes=ax.index,
+                  severity=None if worst[0].severity == "error" else worst[0].severity,
+                  key=f"map:{digest}:" + ",".join(p.kind for p in worst))
 
 
 # --------------------------------------------------------------------------
