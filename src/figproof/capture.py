@@ -308,9 +308,16 @@ def _wrap_loader(rec: Recorder, module: Any, name: str) -> None:
 
     @functools.wraps(real)
     def loader(*args: Any, **kwargs: Any) -> Any:
-        result = real(*args, **kwargs)
         target = args[0] if args else next(iter(kwargs.values()), None)
         info = rec.classify(target)
+        # some readers open files through openers bound before figproof's hooks: record the read here too
+        if info is not None and not rec._busy:
+            _record_read(rec, target, info)
+        rec._busy, outer = True, rec._busy
+        try:
+            result = real(*args, **kwargs)
+        finally:
+            rec._busy = outer
         if info is not None:
             try:
                 cols, groups, truncated = _numeric_columns(result)
@@ -324,6 +331,24 @@ def _wrap_loader(rec: Recorder, module: Any, name: str) -> None:
 
     loader._figproof = True  # type: ignore[attr-defined]
     setattr(module, name, loader)
+
+
+def _record_read(rec: Recorder, target: Any, info: tuple[str, bool]) -> None:
+    resolved = Path(os.fsdecode(target)).resolve()
+    if not info[1] and _is_temp(resolved):
+        return
+    src, _ = rec.user_source(3)
+    if src is None:
+        return
+    if not resolved.exists():
+        rec.event(FileEvent(action="missing", path=info[0], inside_repo=info[1], exists=False, source=src))
+    elif resolved.is_file():
+        rec._busy = True
+        try:
+            digest = _sha256(resolved)
+        finally:
+            rec._busy = False
+        rec.event(FileEvent(action="read", path=info[0], inside_repo=info[1], sha256=digest, source=src))
 
 
 def install_loader_hooks(rec: Recorder) -> None:

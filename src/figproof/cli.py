@@ -75,6 +75,9 @@ def _report_flags(p: argparse.ArgumentParser) -> None:
     p.add_argument("--sarif", metavar="FILE", help="write a SARIF 2.1.0 log (for code-scanning dashboards)")
     p.add_argument("--gitlab", metavar="FILE", help="write a GitLab code-quality report")
     p.add_argument("--images", metavar="DIR", help="write figure images for findings (simulated views, diffs)")
+    p.add_argument("--provenance", metavar="FILE",
+                   help="write a JSON manifest: each figure file, the script that drew it, its inputs' SHA-256, "
+                        "the commit and the environment")
     p.add_argument("--timings", action="store_true", help="add run times to the reports (they then vary)")
     noise = p.add_mutually_exclusive_group()
     noise.add_argument("--quiet", action="store_true", help="print nothing but errors")
@@ -83,6 +86,8 @@ def _report_flags(p: argparse.ArgumentParser) -> None:
 
 def _run_flags(p: argparse.ArgumentParser) -> None:
     p.add_argument("--jobs", type=int, metavar="N", help="scripts run at once (default: config, else CPUs)")
+    p.add_argument("--twice", action="store_true",
+                   help="run every script twice and report output that differs between the runs")
     p.add_argument("--shard", metavar="K/N", help="check only the K-th of N stable shares of the scripts")
     p.add_argument("--changed-files", action="store_true",
                    help="the PATHs are changed files (as pre-commit passes them): check the figure scripts "
@@ -177,6 +182,7 @@ def do_check(path: Path, args: argparse.Namespace, **option_overrides: object): 
                                                    getattr(args, "markdown", None)) if p)
     options = CheckOptions(jobs=getattr(args, "jobs", None), skip_copy=tuple(s for s in skip if s),
                            shard=getattr(args, "shard", None), changed_since=getattr(args, "changed_since", None),
+                           twice=getattr(args, "twice", False),
                            **option_overrides)  # type: ignore[arg-type]
     try:
         return check(path, options, progress=_progress(args))
@@ -240,6 +246,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
     args.images = str(reports / "images")
     args.sarif = str(reports / "figproof.sarif")
     args.gitlab = None
+    args.provenance = str(reports / "provenance.json")
     args.quiet = False
     args.verbose = False
     args.timings = False

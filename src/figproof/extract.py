@@ -524,12 +524,19 @@ def extract_figure(fig: Figure, number: int, rec: Recorder, render_path: Path | 
         for t in fig.texts + ([fig._suptitle] if getattr(fig, "_suptitle", None) is not None else []):
             extractor.add_text(t, "text", in_axes=False)
         fig_texts = extractor.texts
+    inline = None
+    if render_path is not None and rec.script.endswith(".ipynb"):
+        # how a notebook's inline display saves a figure: PNG, tight bounding box, the figure's dpi
+        inline_path = render_path.with_name(render_path.stem + "-inline.png")
+        save = getattr(Figure.savefig, "__wrapped__", Figure.savefig)  # the unhooked savefig: not a user output
+        save(fig, inline_path, format="png", bbox_inches="tight")
+        inline = inline_path.name
     w, h = canvas.get_width_height()
     return FigureModel(id=f"{rec.script}#{number}", script=rec.script, number=number, dpi=float(fig.dpi),
                        size_px=(int(w), int(h)), facecolor=_rgba(fig.get_facecolor()), axes=tuple(models),
                        outputs=tuple(dict.fromkeys(rec.outputs.get(id(fig), []))), samples=samples, calls=calls,
                        tables=tables, render=render, source=rec.figure_sources.get(id(fig)),
-                       texts=tuple(fig_texts))
+                       texts=tuple(fig_texts), inline_render=inline)
 
 
 def _reindex_samples(models: list[Axes], samples: list[Sample]) -> tuple[list[Axes], tuple[Sample, ...]]:

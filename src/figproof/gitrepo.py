@@ -89,4 +89,10 @@ def head_commit(root: Path) -> str | None:
     return os.fsdecode(out).strip() if out else None
 
 
-__all__ = ["GitError", "changed_since", "head_commit", "toplevel", "tracked_files"]
+def head_date(root: Path) -> str | None:
+    """The committer date of HEAD (ISO 8601), or None outside a git work tree."""
+    out = _git(root, "log", "-1", "--format=%cI")
+    return os.fsdecode(out).strip() or None if out else None
+
+
+__all__ = ["GitError", "changed_since", "head_commit", "head_date", "toplevel", "tracked_files"]

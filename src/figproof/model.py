@@ -422,6 +422,7 @@ class FigureModel(Serialisable):
     source: Source | None = None
     notes: tuple[str, ...] = ()
     texts: tuple[Text, ...] = ()  # figure-level texts (suptitle, fig.text), background = figure face colour
+    inline_render: str | None = None  # notebooks: a PNG rendered as the inline backend shows it (tight bbox)
 
 
 @model

@@ -3,8 +3,8 @@
 Reporters in :mod:`figproof.report` render text; this module puts it where
 the user asked (and only there: never into the checked repo unless a path
 given on the command line points into it).  It reads the environment
-variables of the CI conventions it follows: GITHUB_ACTIONS,
-GITHUB_STEP_SUMMARY and NO_COLOR.
+variables of the conventions it follows: GITHUB_ACTIONS,
+GITHUB_STEP_SUMMARY, NO_COLOR and SOURCE_DATE_EPOCH.
 """
 
 from __future__ import annotations
@@ -12,6 +12,7 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import shutil
 import sys
 import time
 from collections.abc import Callable
@@ -48,7 +49,11 @@ def write_reports(checked: Checked, args: argparse.Namespace, *, shown_root: str
     if args.images:
         images = write_images(checked, Path(args.images), Path(args.markdown).parent if args.markdown else None)
     summaries = {rid: r.summary for rid, r in by_id().items()}
-    text = markdown.render(result, images=images, timings=args.timings, rule_summaries=summaries)
+    manifest = provenance_manifest(checked)
+    text = markdown.render(result, images=images, timings=args.timings, rule_summaries=summaries,
+                           provenance=manifest)
+    if getattr(args, "provenance", None):
+        _write(Path(args.provenance), json.dumps(manifest, sort_keys=True, allow_nan=False, indent=2) + "\n")
     if args.markdown:
         _write(Path(args.markdown), text)
     if args.json:
@@ -70,6 +75,28 @@ def write_reports(checked: Checked, args: argparse.Namespace, *, shown_root: str
 def _link(image: Path, relative_to: Path | None) -> str:
     base = relative_to if relative_to is not None else Path.cwd()
     return Path(os.path.relpath(image.resolve(), base.resolve())).as_posix()
+
+
+def check_date(root: Path) -> str | None:
+    """The date a check reports: SOURCE_DATE_EPOCH when set, else the date of the checked commit."""
+    from datetime import datetime, timezone
+
+    from figproof.gitrepo import head_date
+
+    epoch = os.environ.get("SOURCE_DATE_EPOCH")
+    if epoch and epoch.strip().isdigit():
+        return datetime.fromtimestamp(int(epoch), tz=timezone.utc).isoformat()
+    return head_date(root)
+
+
+def provenance_manifest(checked: Checked) -> dict[str, Any]:
+    """Which script drew each figure file from which inputs, the commit and the environment."""
+    from figproof.gitrepo import head_commit
+    from figproof.provenance import build_manifest, environment_fingerprint
+
+    root = checked.config.root
+    return build_manifest(checked.result.runs, checked.context, git_commit=head_commit(root),
+                          environment=environment_fingerprint(), date=check_date(root))
 
 
 def write_images(checked: Checked, folder: Path, relative_to: Path | None) -> dict[str, str]:
@@ -101,6 +128,13 @@ def write_images(checked: Checked, folder: Path, relative_to: Path | None) -> di
             except (OSError, ValueError):
                 continue
             links[fig.id] = _link(out, relative_to)
+    for path, comparison in sorted(checked.context.comparisons.items()):
+        diff = getattr(comparison, "diff_image", None)
+        if comparison.status == "same" or not diff or not Path(diff).is_file():
+            continue
+        target = folder / Path(diff).name
+        shutil.copyfile(diff, target)
+        links[path] = _link(target, relative_to)
     return links
 
 

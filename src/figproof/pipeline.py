@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import tempfile
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path, PurePosixPath
 
 from figproof import __version__, rules
@@ -20,6 +20,7 @@ from figproof.accept import (
     notebook_allow_comments,
     parse_allow_comments,
 )
+from figproof.comparisons import committed_vs_regenerated, first_vs_second, notebook_outputs
 from figproof.config import Config, load_config
 from figproof.context import Inventory, RunContext
 from figproof.discover import choose_working_dir, discover
@@ -41,6 +42,7 @@ class CheckOptions:
     changed: tuple[str, ...] | None = None  # check only scripts among / reading these repo-relative files
     changed_since: str | None = None  # a git ref: check only what changed since it
     shard: str | None = None  # "K/N"
+    twice: bool = False  # run every script a second time to find nondeterministic output
     skip_copy: tuple[str, ...] = ()
 
 
@@ -115,7 +117,7 @@ def check(path: Path, options: CheckOptions | None = None, *, runner: Runner | N
                            memory_limit=config.memory_limit, network=config.network,
                            jobs=options.jobs or config.jobs, skip_copy=options.skip_copy)
     runs = tuple(execute_all(tasks, exec_options, runner=runner, progress=progress))
-    context = RunContext(inventory=inventory, runs=runs)
+    context = build_context(config, inventory, runs, exec_options, twice=options.twice, runner=runner)
     findings = rules.apply(runs, context, config.rules)
     findings, notes = accept_findings(findings, config, inventory)
     if not inventory.scripts:
@@ -124,6 +126,37 @@ def check(path: Path, options: CheckOptions | None = None, *, runner: Runner | N
     result = CheckResult(root=_shown_root(config.root, path), version=__version__, runs=runs,
                          findings=tuple(findings), summary=summary, fail_on=config.fail_on, notes=tuple(notes))
     return Checked(result=result, config=config, inventory=inventory, context=context, artifacts=artifacts)
+
+
+def build_context(config: Config, inventory: Inventory, runs: tuple[ScriptRun, ...], exec_options: Options, *,
+                  twice: bool, runner: Runner | None) -> RunContext:
+    """Everything run-scope rules need: comparisons with committed files and, with --twice, a second run."""
+    drift = config.rules.get("figure-drift")
+    tolerance = float(drift.knobs.get("tolerance", 0.0)) if drift is not None else 0.0
+    artifacts = exec_options.artifacts
+    second: dict[str, ScriptRun] = {}
+    reruns: dict = {}
+    if twice:
+        again = replace(exec_options, artifacts=artifacts / "second-run")
+        tasks = [Task(script=r.path, working_dir=r.working_dir) for r in runs]
+        second_runs = execute_all(tasks, again, runner=runner)
+        second = {r.path: r for r in second_runs}
+        reruns = first_vs_second(runs, second_runs, artifacts, again.artifacts)
+    return RunContext(
+        inventory=inventory, runs=runs,
+        comparisons=committed_vs_regenerated(runs, config.root, artifacts, tolerance),
+        notebook_comparisons=notebook_outputs(runs, config.root, artifacts, tolerance),
+        second_runs=second, rerun_comparisons=reruns, running_version=matplotlib_version())
+
+
+def matplotlib_version() -> str:
+    """The matplotlib version the children run with (same environment), without importing it."""
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("matplotlib")
+    except PackageNotFoundError:
+        return ""
 
 
 def accept_findings(findings: list[Finding], config: Config, inventory: Inventory) -> tuple[list[Finding], list[str]]:

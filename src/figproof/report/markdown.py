@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from collections.abc import Mapping
+from typing import Any
 
 from figproof.findings import CheckResult, Finding
 from figproof.model import ScriptRun
@@ -48,8 +49,10 @@ def _findings_table(findings: list[Finding], images: Mapping[str, str]) -> list[
         msg = _cell(f.message)
         if f.figure and f.figure in images and f.rule.startswith(("colo", "low-contrast")):
             msg += f" ([simulated views]({images[f.figure]}))"
-        if f.rule == "figure-drift" and f.path in images:
-            msg += f" ([difference]({images[f.path]}))"
+        if f.rule == "figure-drift":
+            drifted = [p for p in images if "#" not in p and p in f.message]
+            if drifted:
+                msg += f" ([committed, regenerated, difference]({images[drifted[0]]}))"
         rows.append(f"| `{_cell(where(f))}` | {f.rule} | {f.severity} ({f.confidence}) | {msg} |")
     return rows
 
@@ -69,8 +72,29 @@ def _scripts_table(runs: tuple[ScriptRun, ...], timings: bool) -> list[str]:
     return rows
 
 
+def _provenance(manifest: Mapping[str, Any]) -> list[str]:
+    from figproof.provenance import provenance_rows
+
+    env = manifest.get("environment", {})
+    parts = [f"commit `{str(manifest['git_commit'])[:12]}`" if manifest.get("git_commit") else "not a git commit"]
+    if manifest.get("date"):
+        parts.append(str(manifest["date"]))
+    versions = ", ".join(f"{name} {env[key]}" for key, name in (
+        ("python", "Python"), ("matplotlib", "matplotlib"), ("freetype", "FreeType"), ("numpy", "numpy"),
+        ("pandas", "pandas"), ("pillow", "Pillow")) if env.get(key))
+    if versions:
+        parts.append(versions)
+    rows = provenance_rows(manifest)
+    lines = ["### Figure files and their inputs", "", "; ".join(parts) + ".", ""]
+    if rows:
+        lines += ["| figure file | drawn by | from inputs |", "|---|---|---|"]
+        lines += [f"| `{_cell(f)}` | `{_cell(s)}` | {_cell(i)} |" for f, s, i in rows]
+        lines.append("")
+    return lines
+
+
 def render(result: CheckResult, *, images: Mapping[str, str] | None = None, timings: bool = False,
-           rule_summaries: Mapping[str, str] | None = None) -> str:
+           rule_summaries: Mapping[str, str] | None = None, provenance: Mapping[str, Any] | None = None) -> str:
     """Render the summary; ``images`` maps figure ids / output paths to relative image links."""
     images = images or {}
     lines = [_headline(result), ""]
@@ -90,6 +114,8 @@ def render(result: CheckResult, *, images: Mapping[str, str] | None = None, timi
         lines += ["", "</details>", ""]
     if result.runs:
         lines += ["### Scripts", ""] + _scripts_table(result.runs, timings) + [""]
+    if provenance is not None:
+        lines += _provenance(provenance)
     notes = list(result.notes) + [f"`{r.path}`: {n}" for r in result.runs for n in r.notes]
     if notes:
         lines += ["### Notes", ""] + [f"- {_cell(n)}" for n in notes] + [""]
