@@ -12,7 +12,7 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from figproof.compare import OutputComparison, compare_image_bytes, compare_output, notebook_png_outputs
-from figproof.context import is_figure_output, is_repo_path
+from figproof.context import is_figure_output
 from figproof.execute import artifact_folder
 from figproof.model import ScriptRun
 
@@ -21,8 +21,7 @@ def saved_outputs(run: ScriptRun) -> list[str]:
     """Repo-relative figure files a run saved, in order, without repeats."""
     seen: dict[str, None] = {}
     for ev in run.events:
-        if ev.inside_repo and is_repo_path(ev.path) and (
-                ev.action == "save" or (ev.action == "write" and is_figure_output(ev.path))):
+        if is_figure_output(ev):
             seen.setdefault(ev.path, None)
     return list(seen)
 
