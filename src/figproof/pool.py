@@ -40,8 +40,9 @@ from figproof.model import ScriptRun
 
 START_TIMEOUT = 60.0  # seconds for the server to import its libraries
 FORK_TIMEOUT = 30.0  # seconds for the server to answer a run request with the child's pid
-PRELOAD = ("numpy", "pandas", "matplotlib", "matplotlib.pyplot", "figproof.capture", "figproof.extract",
-           "figproof.model", "figproof.child", "nbformat")
+PRELOAD = ("numpy", "pandas", "matplotlib", "matplotlib.pyplot", "matplotlib.backends.backend_agg", "PIL.Image",
+           "PIL.PngImagePlugin", "figproof.capture", "figproof.extract", "figproof.model", "figproof.child",
+           "nbformat")
 
 
 class PoolLost(RuntimeError):
@@ -300,6 +301,7 @@ def serve() -> int:
     import matplotlib
 
     matplotlib.use("Agg", force=True)
+    _warm_up()
     if threading.active_count() > 1 or _threads() > 1:
         # fork copies only the calling thread; a library thread's locks could deadlock the child
         _send(proto_out, {"ready": False, "reason": f"{_threads()} threads after import"})
@@ -349,6 +351,31 @@ def serve() -> int:
                     children[pid] = req["id"]
                     _send(proto_out, {"id": req["id"], "pid": pid})
     return 0
+
+
+def _warm_up() -> None:
+    """Draw one throwaway figure so font files, glyph caches and lazily imported drawing code are loaded once.
+
+    It is built without pyplot (no figure manager, no figure number taken) and changes no rcParams, so the
+    children start as a fresh interpreter would, only with warm caches.
+    """
+    import io
+
+    try:
+        from matplotlib.figure import Figure
+
+        fig = Figure(figsize=(2, 2), dpi=50)
+        ax = fig.subplots()
+        ax.plot([0, 1], [1, 0], marker="o", label="line")
+        ax.scatter([0.5], [0.5])
+        ax.bar([0.2], [0.4])
+        ax.imshow([[0.0, 1.0]], extent=(0, 1, 0, 1))
+        ax.set_title("title")
+        ax.set_xlabel("x")
+        ax.legend()
+        fig.savefig(io.BytesIO(), format="png")
+    except Exception:  # noqa: BLE001 - warming caches is an optimisation only
+        pass
 
 
 def _reap(children: dict[int, int], proto_out: int) -> None:
