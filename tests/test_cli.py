@@ -102,13 +102,15 @@ def test_fail_on_never_passes(tmp_path) -> None:
 
 @pytest.mark.slow
 def test_reports_are_byte_identical_across_runs(tmp_path) -> None:
+    """Two checks of the same repo give the same bytes, with and without the result cache."""
     repo = copy("mpl_bars", tmp_path)
     texts = []
-    for i in range(2):
+    for i in range(3):
         out = tmp_path / f"out{i}"
-        main(["check", str(repo), "--quiet", "--json", str(out / "r.json"), "--markdown", str(out / "r.md")])
+        flags = ["--no-cache"] if i == 2 else []
+        main(["check", str(repo), "--quiet", "--json", str(out / "r.json"), "--markdown", str(out / "r.md"), *flags])
         texts.append(((out / "r.json").read_bytes(), (out / "r.md").read_bytes()))
-    assert texts[0] == texts[1]
+    assert texts[0] == texts[1] == texts[2]
 
 
 @pytest.mark.slow
@@ -127,10 +129,13 @@ def test_user_tree_is_never_written(tmp_path) -> None:
         subprocess.run(cmd, cwd=repo, check=True, env=env)
     before = {p: p.stat().st_mtime_ns for p in repo.rglob("*") if ".git" not in p.parts}
     main(["check", str(repo), "--quiet"])
+    assert (repo / ".figproof-cache" / ".gitignore").read_text().strip() == "*"
     status = subprocess.run(["git", "status", "--porcelain", "--ignored"], cwd=repo, capture_output=True,
                             text=True, check=True).stdout
-    assert status == ""
-    after = {p: p.stat().st_mtime_ns for p in repo.rglob("*") if ".git" not in p.parts}
+    # the only new thing is figproof's own result cache, which ignores itself for git
+    assert status == "!! .figproof-cache/\n"
+    after = {p: p.stat().st_mtime_ns for p in repo.rglob("*")
+             if ".git" not in p.parts and ".figproof-cache" not in p.parts}
     assert after == before
 
 

@@ -86,6 +86,8 @@ def _report_flags(p: argparse.ArgumentParser) -> None:
 
 def _run_flags(p: argparse.ArgumentParser) -> None:
     p.add_argument("--jobs", type=int, metavar="N", help="scripts run at once (default: config, else CPUs)")
+    p.add_argument("--no-cache", action="store_true",
+                   help="re-run every script even when nothing it depends on changed")
     p.add_argument("--twice", action="store_true",
                    help="run every script twice and report output that differs between the runs")
     p.add_argument("--shard", metavar="K/N", help="check only the K-th of N stable shares of the scripts")
@@ -182,7 +184,7 @@ def do_check(path: Path, args: argparse.Namespace, **option_overrides: object): 
                                                    getattr(args, "markdown", None)) if p)
     options = CheckOptions(jobs=getattr(args, "jobs", None), skip_copy=tuple(s for s in skip if s),
                            shard=getattr(args, "shard", None), changed_since=getattr(args, "changed_since", None),
-                           twice=getattr(args, "twice", False),
+                           twice=getattr(args, "twice", False), cache=not getattr(args, "no_cache", False),
                            **option_overrides)  # type: ignore[arg-type]
     try:
         return check(path, options, progress=_progress(args))
@@ -202,7 +204,7 @@ def run_check(path: Path, args: argparse.Namespace, *, shown_root: str | None = 
         shutil.rmtree(checked.artifacts, ignore_errors=True)
     if not args.quiet:
         print(text)
-        print(final_line(checked.result), file=sys.stderr)
+        print(final_line(checked.result, checked.cached), file=sys.stderr)
     return ExitCode.PASSED if checked.result.summary.passed else ExitCode.FAILED
 
 

@@ -143,11 +143,13 @@ def use_colour(stream: TextIO) -> bool:
     return stream.isatty() and not os.environ.get("NO_COLOR")
 
 
-def final_line(result: CheckResult) -> str:
+def final_line(result: CheckResult, cached: int = 0) -> str:
     """The one-line verdict printed to stderr after the summary."""
     s = result.summary
     text = (f"figproof: {'passed' if s.passed else 'FAILED'} ({s.errors} errors, {s.warnings} warnings, "
             f"{s.notes} notes, {s.accepted} accepted)")
+    if cached:
+        text += f"; {cached} of {s.scripts} script results from the cache"
     if use_colour(sys.stderr):
         text = f"\033[{32 if s.passed else 31}m{text}\033[0m"
     return text

@@ -7,7 +7,8 @@ The reporters in :mod:`figproof.report` render the :class:`CheckResult`;
 from __future__ import annotations
 
 import tempfile
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass, replace
 from pathlib import Path, PurePosixPath
 
@@ -20,11 +21,12 @@ from figproof.accept import (
     notebook_allow_comments,
     parse_allow_comments,
 )
+from figproof.cache import HIT_NOTE, CachingRunner, prune
 from figproof.comparisons import committed_vs_regenerated, first_vs_second, notebook_outputs
 from figproof.config import Config, load_config
 from figproof.context import Inventory, RunContext
 from figproof.discover import choose_working_dir, discover
-from figproof.execute import Options, Runner, Task, execute_all
+from figproof.execute import Options, Runner, Task, default_runner, execute_all
 from figproof.findings import CheckResult, Finding
 from figproof.gitrepo import changed_since
 from figproof.model import ScriptRun
@@ -43,6 +45,7 @@ class CheckOptions:
     changed_since: str | None = None  # a git ref: check only what changed since it
     shard: str | None = None  # "K/N"
     twice: bool = False  # run every script a second time to find nondeterministic output
+    cache: bool = False  # reuse results of scripts whose script, inputs and environment did not change
     skip_copy: tuple[str, ...] = ()
 
 
@@ -55,6 +58,7 @@ class Checked:
     inventory: Inventory
     context: RunContext
     artifacts: Path
+    cached: int = 0  # scripts whose result came from the cache
 
 
 def plan(config: Config, inventory: Inventory, only: tuple[str, ...] | None = None) -> list[Task]:
@@ -115,9 +119,23 @@ def check(path: Path, options: CheckOptions | None = None, *, runner: Runner | N
     tasks = plan(config, inventory, select_scripts(config, inventory, options))
     exec_options = Options(root=config.root, artifacts=artifacts, timeout=config.timeout,
                            memory_limit=config.memory_limit, network=config.network,
-                           jobs=options.jobs or config.jobs, skip_copy=options.skip_copy)
-    runs = tuple(execute_all(tasks, exec_options, runner=runner, progress=progress))
-    context = build_context(config, inventory, runs, exec_options, twice=options.twice, runner=runner)
+                           jobs=options.jobs or config.jobs, skip_copy=(*options.skip_copy, config.cache_dir))
+    selected = options.scripts is not None or options.changed is not None or options.changed_since is not None \
+        or options.shard is not None
+    with _runners(config, options, runner) as (active, bare):
+        runs = tuple(execute_all(tasks, exec_options, runner=active, progress=progress))
+        second = None
+        if options.twice:
+            # the second run must really run: never from the cache
+            again = replace(exec_options, artifacts=artifacts / "second-run")
+            second = (again.artifacts, execute_all([Task(script=r.path, working_dir=r.working_dir) for r in runs],
+                                                   again, runner=bare))
+    if options.cache and not selected:
+        prune(config.cache_path(), inventory.scripts)
+    # whether a result came from the cache is told on the terminal, not in reports (they stay byte-identical)
+    cached = sum(1 for r in runs if HIT_NOTE in r.notes)
+    runs = tuple(replace(r, notes=tuple(n for n in r.notes if n != HIT_NOTE)) for r in runs)
+    context = build_context(config, inventory, runs, artifacts, second)
     findings = rules.apply(runs, context, config.rules)
     findings, notes = accept_findings(findings, config, inventory)
     if not inventory.scripts:
@@ -125,28 +143,53 @@ def check(path: Path, options: CheckOptions | None = None, *, runner: Runner | N
     summary = summarise(runs, findings, config.fail_on)
     result = CheckResult(root=_shown_root(config.root, path), version=__version__, runs=runs,
                          findings=tuple(findings), summary=summary, fail_on=config.fail_on, notes=tuple(notes))
-    return Checked(result=result, config=config, inventory=inventory, context=context, artifacts=artifacts)
+    return Checked(result=result, config=config, inventory=inventory, context=context, artifacts=artifacts,
+                   cached=cached)
 
 
-def build_context(config: Config, inventory: Inventory, runs: tuple[ScriptRun, ...], exec_options: Options, *,
-                  twice: bool, runner: Runner | None) -> RunContext:
-    """Everything run-scope rules need: comparisons with committed files and, with --twice, a second run."""
+@contextmanager
+def _runners(config: Config, options: CheckOptions, runner: Runner | None) -> Iterator[tuple[Runner, Runner]]:
+    """(runner for the check, runner that never uses the cache); both shut down on exit."""
+    if options.cache:
+        cache = CachingRunner(runner or default_runner, config.cache_path())
+        with cache:
+            yield cache, _Lazy(cache.inner)
+        return
+    bare = runner or default_runner()
+    try:
+        yield bare, bare
+    finally:
+        close = getattr(bare, "close", None)
+        if runner is None and callable(close):
+            close()
+
+
+class _Lazy:
+    """A runner built on first use (so an all-cached check never starts the warm pool)."""
+
+    def __init__(self, make: Callable[[], Runner]) -> None:
+        self._make = make
+
+    def run(self, task: Task, options: Options) -> ScriptRun:
+        return self._make().run(task, options)
+
+
+def build_context(config: Config, inventory: Inventory, runs: tuple[ScriptRun, ...], artifacts: Path,
+                  second: tuple[Path, list[ScriptRun]] | None) -> RunContext:
+    """Everything run-scope rules need: comparisons with committed files and, with --twice, the second run."""
     drift = config.rules.get("figure-drift")
     tolerance = float(drift.knobs.get("tolerance", 0.0)) if drift is not None else 0.0
-    artifacts = exec_options.artifacts
-    second: dict[str, ScriptRun] = {}
+    second_runs: dict[str, ScriptRun] = {}
     reruns: dict = {}
-    if twice:
-        again = replace(exec_options, artifacts=artifacts / "second-run")
-        tasks = [Task(script=r.path, working_dir=r.working_dir) for r in runs]
-        second_runs = execute_all(tasks, again, runner=runner)
-        second = {r.path: r for r in second_runs}
-        reruns = first_vs_second(runs, second_runs, artifacts, again.artifacts)
+    if second is not None:
+        second_artifacts, again = second
+        second_runs = {r.path: r for r in again}
+        reruns = first_vs_second(runs, again, artifacts, second_artifacts)
     return RunContext(
         inventory=inventory, runs=runs,
         comparisons=committed_vs_regenerated(runs, config.root, artifacts, tolerance),
         notebook_comparisons=notebook_outputs(runs, config.root, artifacts, tolerance),
-        second_runs=second, rerun_comparisons=reruns, running_version=matplotlib_version())
+        second_runs=second_runs, rerun_comparisons=reruns, running_version=matplotlib_version())
 
 
 def matplotlib_version() -> str:
