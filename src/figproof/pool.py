@@ -42,7 +42,7 @@ START_TIMEOUT = 60.0  # seconds for the server to import its libraries
 FORK_TIMEOUT = 30.0  # seconds for the server to answer a run request with the child's pid
 PRELOAD = ("numpy", "pandas", "matplotlib", "matplotlib.pyplot", "matplotlib.backends.backend_agg", "PIL.Image",
            "PIL.PngImagePlugin", "figproof.capture", "figproof.extract", "figproof.model", "figproof.child",
-           "nbformat")
+           "nbformat", "resource", "runpy", "pkgutil")
 
 
 class PoolLost(RuntimeError):
