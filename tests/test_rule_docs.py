@@ -68,3 +68,9 @@ def test_every_rule_is_documented() -> None:
     for r in RULES:
         assert r.summary and r.why and r.fix and r.sources, r.id
         assert r.id == r.id.lower() and " " not in r.id
+
+
+def test_readme_lists_exactly_the_rules() -> None:
+    readme = (DOCS.parents[1] / "README.md").read_text(encoding="utf-8")
+    listed = [line.split("`")[1] for line in readme.splitlines() if line.startswith("| [`")]
+    assert listed == [r.id for r in RULES]
