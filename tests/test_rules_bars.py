@@ -21,6 +21,7 @@ def test_means_with_error_bars_on_tops_are_likely() -> None:
     [hit] = hits(fig)
     assert hit.confidence == "likely" and hit.severity is None
     assert "3 bars" in hit.message and "3 carry error bars centred on their tops" in hit.message
+    assert "whole numbers" not in hit.message  # the weak evidence is named only when it is all there is
 
 
 def test_error_bars_elsewhere_do_not_count() -> None:
@@ -62,6 +63,13 @@ def test_heights_equal_to_group_means_of_loaded_data_are_certain() -> None:
     [hit] = hits(b.figure(b.axes(bars=[b.bars(means)]), tables=(table,)))
     assert hit.confidence == "certain"
     assert "'rate' by 'strain' in data/growth.csv" in hit.message
+
+
+def test_heights_equal_to_means_of_aggregated_groups_are_certain() -> None:
+    groups = [np.array([5.9, 6.4, 5.1, 6.8]), np.array([7.7, 8.4, 7.1, 8.9])]
+    samples = tuple(b.Sample(values=g, origin="seaborn-estimate") for g in groups)
+    [hit] = hits(b.figure(b.axes(bars=[b.bars([g.mean() for g in groups], origin="seaborn")]), samples=samples))
+    assert hit.confidence == "certain" and "(n = 4, 4)" in hit.message
 
 
 def test_seaborn_barplot_is_an_estimate() -> None:

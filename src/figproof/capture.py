@@ -361,10 +361,43 @@ def install_loader_hooks(rec: Recorder) -> None:
                      "read_fwf", "read_hdf", "read_pickle", "read_stata", "read_spss", "read_sas"):
             _wrap_loader(rec, pd, name)
 
-    if "pandas" in sys.modules:
-        patch_pandas(sys.modules["pandas"])
-    else:
-        sys.meta_path.insert(0, _PostImportFinder({"pandas": patch_pandas}))
+    def patch_seaborn_stats(module: Any) -> None:
+        _wrap_estimates(rec, module)
+
+    hooks: dict[str, Callable[[Any], None]] = {}
+    for name, hook in (("pandas", patch_pandas), ("seaborn._statistics", patch_seaborn_stats)):
+        if name in sys.modules:
+            hook(sys.modules[name])
+        else:
+            hooks[name] = hook
+    if hooks:
+        sys.meta_path.insert(0, _PostImportFinder(hooks))
+
+
+MAX_ESTIMATE_SAMPLES = 500
+
+
+def _wrap_estimates(rec: Recorder, module: Any) -> None:
+    """Record the raw group values seaborn aggregates into a bar or point estimate (barplot, pointplot)."""
+    cls = getattr(module, "EstimateAggregator", None)
+    if cls is None or getattr(cls.__call__, "_figproof", False):
+        return
+    real = cls.__call__
+
+    @functools.wraps(real)
+    def call(self: Any, data: Any, var: str) -> Any:
+        result = real(self, data, var)
+        try:
+            if len(rec.samples) < MAX_ESTIMATE_SAMPLES:
+                values = _as_array(data[var])
+                if values is not None:
+                    rec.samples.append((values, "seaborn-estimate", rec.user_source(2)[0]))
+        except Exception:  # noqa: BLE001 - recording must never break the user's script
+            pass
+        return result
+
+    call._figproof = True  # type: ignore[attr-defined]
+    cls.__call__ = call
 
 
 # --------------------------------------------------------------------------
@@ -538,7 +571,9 @@ def install_matplotlib_hooks(rec: Recorder) -> None:
             finally:
                 rec._busy = False
             try:
-                rec.calls.append((self, method_name, _record_arrays(method_name, args, kwargs), src))
+                # seaborn draws error bars and estimate lines with ax.plot: those are not observations
+                if not (lib == "seaborn" and method_name == "plot"):
+                    rec.calls.append((self, method_name, _record_arrays(method_name, args, kwargs), src))
                 if method_name == "hist":
                     _tag_hist(result)
             except Exception:  # noqa: BLE001

@@ -243,8 +243,33 @@ class _AxesExtractor:
                 hi = np.array([g[2] for g in group])
                 self.errorbars.append(ErrorBars(
                     orientation="vertical" if vertical else "horizontal", positions=pos,
-                    centers=(lo + hi) / 2, lower=lo, upper=hi, color=_rgba(group[0][4].get_color()),
-                    origin="lines", source=_src(group[0][4])))
+                    centers=self._estimates(pos, lo, hi, vertical), lower=lo, upper=hi,
+                    color=_rgba(group[0][4].get_color()), origin="lines", source=_src(group[0][4])))
+
+    def _estimates(self, pos: np.ndarray, lo: np.ndarray, hi: np.ndarray, vertical: bool) -> np.ndarray:
+        """The value each error bar belongs to: the top of a bar, or a marker, at its position.
+
+        An interval need not be symmetric (a bootstrap CI is not), so its midpoint is only the fallback.
+        """
+        centers = (lo + hi) / 2
+        orientation = "vertical" if vertical else "horizontal"
+        for i, p in enumerate(pos):
+            for bars in self.bars:
+                if bars.orientation != orientation:
+                    continue
+                hit = np.flatnonzero(np.isclose(bars.positions, p, atol=1e-9 + 0.01 * float(np.nanmax(bars.widths))))
+                if hit.size:
+                    centers[i] = bars.bottoms[hit[0]] + bars.heights[hit[0]]
+                    break
+            else:
+                for pts in self.points:
+                    along, value = (pts.x, pts.y) if vertical else (pts.y, pts.x)
+                    hit = np.flatnonzero(np.isclose(along, p, atol=1e-9))
+                    inside = [j for j in hit if lo[i] - 1e-12 <= value[j] <= hi[i] + 1e-12]
+                    if inside:
+                        centers[i] = value[inside[0]]
+                        break
+        return centers
 
     def collections(self) -> None:
         for coll in self.ax.collections:
@@ -464,23 +489,45 @@ def _line_points(ax: MplAxes, ln: Line2D, draw_order: int | None = None) -> Poin
 
 
 def _errorbar_segment(ln: Line2D) -> tuple[float, float, float, bool] | None:
-    """A Line2D that is one error bar (as seaborn draws them): a 2-point segment, maybe NaN-joined caps."""
+    """A Line2D that is one error bar, as seaborn draws them: one segment, or NaN-joined bar and two caps.
+
+    Returns (position, low end, high end, vertical) or None when the line is something else.
+    """
     if ln.get_marker() not in NO_MARKERS:
         return None
     xy = np.asarray(ln.get_xydata(), float)
     if len(xy) < 2:
         return None
-    first = xy[:2]
-    if len(xy) > 2 and not np.isnan(xy[2]).any():
+    breaks = np.flatnonzero(np.isnan(xy).any(axis=1))
+    pieces = [p for p in np.split(xy, breaks) if len(p)]
+    segs = [p[~np.isnan(p).any(axis=1)] for p in pieces]
+    if any(len(seg) != 2 for seg in segs):
         return None
-    if not np.isfinite(first).all():
+    kinds = [_orientation(seg) for seg in segs]
+    if None in kinds:
         return None
-    if np.isclose(first[0, 0], first[1, 0]) and not np.isclose(first[0, 1], first[1, 1]):
-        lo, hi = sorted((first[0, 1], first[1, 1]))
-        return float(first[0, 0]), float(lo), float(hi), True
-    if np.isclose(first[0, 1], first[1, 1]) and not np.isclose(first[0, 0], first[1, 0]) and len(xy) > 2:
-        lo, hi = sorted((first[0, 0], first[1, 0]))
-        return float(first[0, 1]), float(lo), float(hi), False
+    if len(segs) == 1:
+        bar, kind = segs[0], kinds[0]
+        if kind != "v":  # a lone horizontal segment may be a reference line; only vertical counts
+            return None
+    elif len(segs) == 3 and kinds.count(kinds[0]) != 3:
+        odd = [i for i, k in enumerate(kinds) if kinds.count(k) == 1]
+        if len(odd) != 1:
+            return None
+        bar, kind = segs[odd[0]], kinds[odd[0]]
+    else:
+        return None
+    axis = 1 if kind == "v" else 0
+    lo, hi = sorted((float(bar[0, axis]), float(bar[1, axis])))
+    return float(bar[0, 1 - axis]), lo, hi, kind == "v"
+
+
+def _orientation(seg: np.ndarray) -> str | None:
+    same_x, same_y = np.isclose(seg[0, 0], seg[1, 0]), np.isclose(seg[0, 1], seg[1, 1])
+    if same_x and not same_y:
+        return "v"
+    if same_y and not same_x:
+        return "h"
     return None
 
 
@@ -540,7 +587,8 @@ def extract_figure(fig: Figure, number: int, rec: Recorder, render_path: Path | 
 
 
 def _reindex_samples(models: list[Axes], samples: list[Sample]) -> tuple[list[Axes], tuple[Sample, ...]]:
-    """Keep only the samples this figure's boxes and violins refer to, renumbered from 0."""
+    """Keep the samples this figure's boxes and violins refer to (renumbered from 0), then the groups
+    seaborn aggregated into estimates (rules match those to bars by their mean)."""
     import dataclasses
 
     used: dict[int, int] = {}
@@ -555,4 +603,6 @@ def _reindex_samples(models: list[Axes], samples: list[Sample]) -> tuple[list[Ax
         out.append(dataclasses.replace(m, boxes=tuple(renumber(b) for b in m.boxes),
                                        violins=tuple(renumber(v) for v in m.violins)))
     ordered = sorted(used, key=used.__getitem__)
-    return out, tuple(samples[i] for i in ordered)
+    has_bars = any(m.bars or m.errorbars for m in models)
+    estimates = [s for s in samples if s.origin == "seaborn-estimate"] if has_bars else []
+    return out, tuple(samples[i] for i in ordered) + tuple(estimates)

@@ -96,6 +96,18 @@ def _group_means(table: LoadedTable, heights: np.ndarray, rtol: float) -> str | 
     return None
 
 
+def _sample_means(figure: FigureModel, heights: np.ndarray, rtol: float) -> str | None:
+    """Name the recorded groups (e.g. the ones seaborn aggregated) whose means equal the bar heights."""
+    sizes = []
+    for h in heights:
+        match = [s for s in figure.samples if s.values.size > 1 and not _is_whole(s.values)
+                 and np.isclose(np.nanmean(s.values), h, rtol=rtol, atol=1e-12)]
+        if not match:
+            return None
+        sizes.append(int(np.isfinite(match[0].values).sum()))
+    return "the values the plotting call aggregated (n = " + ", ".join(map(str, sizes)) + ")"
+
+
 @rule(
     "bars-for-continuous",
     severity="error",
@@ -176,6 +188,8 @@ def _judge(figure: FigureModel, ax: Axes, index: int, bars: BarSet, knobs: Knobs
         matched = _group_means(table, heights, float(knobs["mean_rtol"]))
         if matched:
             break
+    if not matched:
+        matched = _sample_means(figure, heights, float(knobs["mean_rtol"]))
     if matched:
         evidence.append(f"their heights equal the group means of {matched}")
         confidence, severity = "certain", None
@@ -188,7 +202,8 @@ def _judge(figure: FigureModel, ax: Axes, index: int, bars: BarSet, knobs: Knobs
         evidence.append("seaborn's barplot draws an estimate (the mean by default) of each group")
         if confidence != "certain":
             confidence, severity = "likely", None
-    evidence.append("the heights are not whole numbers")
+    if not evidence:
+        evidence.append("the heights are not whole numbers")
     n = heights.size
     noun = "bar" if n == 1 else "bars"
     where = f"axes {ax.index + 1}" + (f" ('{ax.title}')" if ax.title else "")
