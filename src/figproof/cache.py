@@ -62,6 +62,7 @@ from figproof import __version__
 from figproof.execute import Options, Runner, Task, artifact_folder
 from figproof.imports import local_imports, search_folders
 from figproof.model import ScriptRun, dump_run, load_run
+from figproof.hashing import file_sha256
 
 KEY_SCHEMA = 1
 RUNS = "runs"  # entries live here, one folder per script: key.json + artifact/
@@ -78,16 +79,6 @@ def _digest(data: Any) -> str:
     return hashlib.sha256(json.dumps(data, sort_keys=True, default=str).encode("utf-8")).hexdigest()
 
 
-def file_sha256(path: Path) -> str | None:
-    """SHA-256 of a file's bytes, or None when it is not a readable regular file."""
-    try:
-        h = hashlib.sha256()
-        with open(path, "rb") as fh:
-            for chunk in iter(lambda: fh.read(1 << 20), b""):
-                h.update(chunk)
-        return h.hexdigest()
-    except OSError:
-        return None
 
 
 def _distributions() -> list[str]:

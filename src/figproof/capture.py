@@ -20,7 +20,6 @@ from __future__ import annotations
 
 import builtins
 import functools
-import hashlib
 import importlib.abc
 import importlib.machinery
 import io
@@ -37,6 +36,7 @@ from typing import Any
 
 import numpy as np
 
+from figproof.hashing import file_sha256
 from figproof.model import FileEvent, Source
 
 MAX_RECORDED_VALUES = 200_000  # per recorded array; keeps the child→parent message small
@@ -146,15 +146,14 @@ class Recorder:
 _REAL_OPEN = builtins.open
 
 
-def _sha256(path: Path) -> str | None:
+def _record_read(rec: Recorder, resolved: Path, shown: str, inside: bool, src: Source) -> None:
+    """A read of an existing file, with its SHA-256 (hashed without going through the open hook)."""
+    rec._busy = True
     try:
-        h = hashlib.sha256()
-        with _REAL_OPEN(path, "rb") as fh:
-            for chunk in iter(lambda: fh.read(1 << 20), b""):
-                h.update(chunk)
-        return h.hexdigest()
-    except OSError:
-        return None
+        digest = file_sha256(resolved, _REAL_OPEN)
+    finally:
+        rec._busy = False
+    rec.event(FileEvent(action="read", path=shown, inside_repo=inside, sha256=digest, source=src))
 
 
 def _system_prefixes() -> tuple[str, ...]:
@@ -207,12 +206,7 @@ def install_io_hooks(rec: Recorder, *, network: bool) -> None:
             if writing:
                 rec.event(FileEvent(action="write", path=shown, inside_repo=inside, source=src))
             elif resolved.is_file():
-                rec._busy = True
-                try:
-                    digest = _sha256(resolved)
-                finally:
-                    rec._busy = False
-                rec.event(FileEvent(action="read", path=shown, inside_repo=inside, sha256=digest, source=src))
+                _record_read(rec, resolved, shown, inside, src)
         return handle
 
     builtins.open = guarded_open
@@ -312,7 +306,7 @@ def _wrap_loader(rec: Recorder, module: Any, name: str) -> None:
         info = rec.classify(target)
         # some readers open files through openers bound before figproof's hooks: record the read here too
         if info is not None and not rec._busy:
-            _record_read(rec, target, info)
+            _record_load(rec, target, info)
         rec._busy, outer = True, rec._busy
         try:
             result = real(*args, **kwargs)
@@ -333,7 +327,7 @@ def _wrap_loader(rec: Recorder, module: Any, name: str) -> None:
     setattr(module, name, loader)
 
 
-def _record_read(rec: Recorder, target: Any, info: tuple[str, bool]) -> None:
+def _record_load(rec: Recorder, target: Any, info: tuple[str, bool]) -> None:
     resolved = Path(os.fsdecode(target)).resolve()
     if not info[1] and _is_temp(resolved):
         return
@@ -343,12 +337,7 @@ def _record_read(rec: Recorder, target: Any, info: tuple[str, bool]) -> None:
     if not resolved.exists():
         rec.event(FileEvent(action="missing", path=info[0], inside_repo=info[1], exists=False, source=src))
     elif resolved.is_file():
-        rec._busy = True
-        try:
-            digest = _sha256(resolved)
-        finally:
-            rec._busy = False
-        rec.event(FileEvent(action="read", path=info[0], inside_repo=info[1], sha256=digest, source=src))
+        _record_read(rec, resolved, info[0], info[1], src)
 
 
 def install_loader_hooks(rec: Recorder) -> None:

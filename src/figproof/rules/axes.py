@@ -15,7 +15,7 @@ import numpy as np
 
 from figproof.findings import Hit
 from figproof.model import Axes, Axis, FigureModel, Line, PointSet, Source
-from figproof.rules.base import Knob, Knobs, rule
+from figproof.rules.base import Knob, Knobs, counted, rule
 
 # scales whose axes-fraction coordinate we can compute without extra parameters
 _FRACTION_SCALES = ("linear", "log", "logit")
@@ -228,12 +228,6 @@ def _where(name: str, code: int, axis: Axis) -> str:
     return f"{word} the {name}-limit {_fmt(hi if code == _ABOVE else lo)}"
 
 
-def _counted(part: int, whole: int, singular: str, plural: str) -> str:
-    """'9 of 24 points (38%)': the count, the noun, then the share."""
-    share = 100.0 * part / whole if whole else 0.0
-    return f"{part} of {whole} {singular if whole == 1 else plural} ({share:.0f}%)"
-
-
 @rule(
     "axis-clips-data",
     severity="error",
@@ -329,7 +323,7 @@ def axis_clips_data(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
                 if n:
                     groups[("x", code)] = n
             ranked = sorted(groups.items(), key=lambda kv: (-kv[1], kv[0]))
-            head = _counted(count, total, fam.singular, fam.plural)
+            head = counted(count, total, fam.singular, fam.plural)
             one = count == 1
             if len(ranked) == 1:
                 (name, code), _ = ranked[0]

@@ -105,10 +105,16 @@ def knob(knobs: Knobs, rule_: Rule | None, name: str) -> float:
     raise KeyError(name)
 
 
+def counted(part: int, whole: int, singular: str, plural: str) -> str:
+    """'9 of 24 points (38%)': the count, the noun, then the share."""
+    share = 100.0 * part / whole if whole else 0.0
+    return f"{part} of {whole} {singular if whole == 1 else plural} ({share:.0f}%)"
+
+
 def pct(part: int, whole: int) -> str:
     """Format a share for messages: ``"9 of 24 (38%)"``."""
     share = 100.0 * part / whole if whole else 0.0
     return f"{part} of {whole} ({share:.0f}%)"
 
 
-__all__ = ["Knob", "Knobs", "Rule", "knob", "pct", "rule"]
+__all__ = ["Knob", "Knobs", "Rule", "counted", "knob", "pct", "rule"]

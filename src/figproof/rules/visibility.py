@@ -18,7 +18,7 @@ from scipy.spatial import cKDTree
 from figproof.colour_science import blend_over, delta_e
 from figproof.findings import Hit
 from figproof.model import Axes, FigureModel, PointSet
-from figproof.rules.base import Knob, Knobs, rule
+from figproof.rules.base import Knob, Knobs, counted, rule
 
 HIDDEN_WARNING = 0.25
 HIDDEN_ERROR = 0.5
@@ -202,11 +202,6 @@ def _faint(ps: PointSet, keep: np.ndarray, background: np.ndarray, limit: float)
     return faint, float(alpha[faint].min()) if faint.any() else 1.0
 
 
-def _counted(part: int, whole: int) -> str:
-    share = 100.0 * part / whole if whole else 0.0
-    return f"{part} of {whole} {'marker' if whole == 1 else 'markers'} ({share:.0f}%)"
-
-
 @rule(
     "points-hidden",
     severity="warning",
@@ -330,7 +325,7 @@ def points_hidden(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
             if severity is not None:
                 how = "nearest-neighbour" if ov.exact else "grid-occupancy estimate"
                 dup_text = f", {dups} of them duplicates within {k['duplicate_px']:g} px" if dups else ""
-                yield Hit(message=(f"{_counted(hidden, m)} overlap a neighbour closer than the marker radius "
+                yield Hit(message=(f"{counted(hidden, m, 'marker', 'markers')} overlap a neighbour closer than the marker radius "
                                    f"({float(np.median(radius)):.1f} px){dup_text} ({how})"),
                           source=ps.source, axes=ax.index, severity="error" if severity == "error" else None,
                           confidence="certain" if ov.exact else "likely", key=f"points:{i}:overlap")
@@ -346,7 +341,7 @@ def points_hidden(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
                     reasons.append(f"{int(under_shapes.sum())} under opaque bars or shapes drawn later")
                 if legend.any():
                     reasons.append(f"{int(legend.sum())} under the legend")
-                yield Hit(message=f"{_counted(c, m)} are covered ({' and '.join(reasons)})",
+                yield Hit(message=f"{counted(c, m, 'marker', 'markers')} are covered ({' and '.join(reasons)})",
                           source=ps.source, axes=ax.index, severity="error" if c >= k["covered_error"] * m else None,
                           confidence="certain", key=f"points:{i}:covered")
 
@@ -355,7 +350,7 @@ def points_hidden(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
             faint &= ~ov.hidden
             f = int(faint.sum())
             if f:
-                yield Hit(message=(f"{_counted(f, m)} are nearly invisible: blended over the background "
+                yield Hit(message=(f"{counted(f, m, 'marker', 'markers')} are nearly invisible: blended over the background "
                                    f"(lowest opacity {lowest_alpha:.2g}) they differ from it by less than "
                                    f"ΔE' {k['faint_delta_e']:g}"),
                           source=ps.source, axes=ax.index, confidence="certain", key=f"points:{i}:faint")
