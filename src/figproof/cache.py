@@ -60,9 +60,9 @@ from typing import Any
 
 from figproof import __version__
 from figproof.execute import Options, Runner, Task, artifact_folder
+from figproof.hashing import file_sha256
 from figproof.imports import local_imports, search_folders
 from figproof.model import ScriptRun, dump_run, load_run
-from figproof.hashing import file_sha256
 
 KEY_SCHEMA = 1
 RUNS = "runs"  # entries live here, one folder per script: key.json + artifact/
