@@ -420,3 +420,14 @@ def test_importing_rules_does_not_import_pyplot() -> None:
     code = "import sys, figproof.rules.distribution, figproof.dip; print('matplotlib.pyplot' in sys.modules)"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
     assert out.strip() == "False"
+
+
+def test_messages_name_groups_by_their_tick_labels() -> None:
+    from figproof.model import Axis
+    from figproof.rules.observations import group_label, where
+
+    ax = axes()
+    ax = type(ax)(index=0, x=Axis(ticks=((1.0, "wild type"), (2.0, "2"))), y=ax.y)
+    assert where(True, 1.0, ax) == "x = 1 ('wild type')"
+    assert group_label(ax, True, 2.0) is None  # a label that only repeats the position adds nothing
+    assert where(True, 3.0, ax) == "x = 3"

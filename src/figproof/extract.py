@@ -100,10 +100,12 @@ def _axis(ax: MplAxes, which: str) -> Axis:
     axis = ax.xaxis if which == "x" else ax.yaxis
     lim = ax.get_xlim() if which == "x" else ax.get_ylim()
     converter = type(axis.get_converter()).__name__ if hasattr(axis, "get_converter") else ""
+    ticks = tuple((float(t.get_loc()), t.label1.get_text()) for t in axis.get_major_ticks()
+                  if t.label1.get_visible() and t.label1.get_text().strip())[:100]
     return Axis(lim=(float(lim[0]), float(lim[1])),
                 scale=ax.get_xscale() if which == "x" else ax.get_yscale(),
                 label=axis.get_label_text(), inverted=bool(lim[0] > lim[1]),
-                categorical="Category" in converter, dates="Date" in converter)
+                categorical="Category" in converter, dates="Date" in converter, ticks=ticks)
 
 
 class _AxesExtractor:

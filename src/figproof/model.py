@@ -340,6 +340,7 @@ class Axis(Serialisable):
     inverted: bool = False
     categorical: bool = False
     dates: bool = False
+    ticks: tuple[tuple[float, str], ...] = ()  # major tick positions with their labels, as drawn
 
 
 @model

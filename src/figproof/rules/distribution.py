@@ -25,6 +25,7 @@ from figproof.rules.observations import (
     finite,
     fmt,
     groups_centred,
+    group_label,
     half_width,
     matched,
     recorded_groups,
@@ -387,19 +388,22 @@ def summary_hides_small_n(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
             found.setdefault((s.kind, severity, confidence), []).append((s, drawn, confidence))
         # one finding per kind of summary, severity and confidence in an axes, not one per box
         for (kind, severity, _), items in found.items():
-            yield _small_n_hit(ax.index, kind, severity, items)
+            yield _small_n_hit(ax, kind, severity, items)
 
 
-def _small_n_hit(axes: int, kind: str, severity: str, items: list[tuple[_Summary, int, str]]) -> Hit:
+def _small_n_hit(ax: Axes, kind: str, severity: str, items: list[tuple[_Summary, int, str]]) -> Hit:
     confidence = items[0][2]
     first = items[0][0]
     if len(items) == 1:
         s, drawn, _ = items[0]
-        message = (f"the {kind} at {where(s.vertical, s.position)} summarises n = {s.n} values and draws "
+        message = (f"the {kind} at {where(s.vertical, s.position, ax)} summarises n = {s.n} values and draws "
                    f"{pct(drawn, s.n)} of them as points")
     else:
         axis = "x" if first.vertical else "y"
+        labels = [group_label(ax, s.vertical, s.position) for s, _, _ in items]
         places = ", ".join(fmt(s.position) for s, _, _ in items)
+        if all(labels):
+            places += " (" + ", ".join(f"'{lab}'" for lab in labels) + ")"
         sizes = sorted({s.n for s, _, _ in items if s.n is not None})
         n_text = f"n = {sizes[0]}" if len(sizes) == 1 else f"n = {sizes[0]} to {sizes[-1]}"
         total = sum(s.n or 0 for s, _, _ in items)
@@ -407,7 +411,7 @@ def _small_n_hit(axes: int, kind: str, severity: str, items: list[tuple[_Summary
         plural = "es" if kind == "box" else "s"
         message = (f"{len(items)} {kind}{plural} (at {axis} = {places}) summarise {n_text} values each and draw "
                    f"{pct(drawn, total)} of their values as points")
-    return Hit(message=message, source=first.source, axes=axes, severity=severity, confidence=confidence,
+    return Hit(message=message, source=first.source, axes=ax.index, severity=severity, confidence=confidence,
                key=f"{kind}:{severity}:" + ",".join(fmt(s.position) for s, _, _ in items))
 
 
@@ -495,7 +499,7 @@ def box_hides_modes(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
             if test.pvalue >= knobs["alpha"]:
                 continue
             p = "p ≤ 0.001" if test.pvalue <= 0.001 else f"p = {test.pvalue:.3f}"  # the table's floor
-            yield Hit(message=f"the values behind the box at {where(vertical, box.position)} are multimodal: "
+            yield Hit(message=f"the values behind the box at {where(vertical, box.position, ax)} are multimodal: "
                               f"Hartigan's dip {test.dip:.3f}, {p}, n = {test.n}",
                       source=box.source, axes=ax.index,
                       confidence="likely" if test.pvalue < knobs["strong_alpha"] else "possible",

@@ -8,6 +8,7 @@ column).  Pure functions of the model, like the rules that use them.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -166,5 +167,22 @@ def fmt(v: float) -> str:
     return f"{v:.3g}"
 
 
-def where(vertical: bool, position: float) -> str:
-    return f"{'x' if vertical else 'y'} = {fmt(position)}"
+def where(vertical: bool, position: float, ax: Axes | None = None) -> str:
+    """'x = 2', or "x = 2 ('knockout')" when a tick label names the group at that position."""
+    text = f"{'x' if vertical else 'y'} = {fmt(position)}"
+    label = group_label(ax, vertical, position) if ax is not None else None
+    return f"{text} ('{label}')" if label else text
+
+
+def group_label(ax: Axes, vertical: bool, position: float) -> str | None:
+    """The tick label at ``position`` on the group axis, unless it only repeats the number."""
+    axis = ax.x if vertical else ax.y
+    for loc, label in axis.ticks:
+        if math.isclose(loc, position, rel_tol=1e-9, abs_tol=1e-9):
+            try:
+                if math.isclose(float(label.replace("\u2212", "-")), position, rel_tol=1e-9, abs_tol=1e-9):
+                    return None
+            except ValueError:
+                pass
+            return label
+    return None
