@@ -57,6 +57,7 @@ class Recorder:
     sandbox: Path
     script: str  # repo-relative
     events_path: Path | None = None
+    protect: tuple[Path, ...] = ()  # the user's own repo: never written, even when it sits in the temp folder
     figures: list[Any] = field(default_factory=list)
     figure_sources: dict[int, Source | None] = field(default_factory=dict)
     outputs: dict[int, list[str]] = field(default_factory=dict)
@@ -118,6 +119,12 @@ class Recorder:
                         lib = label
             frame = frame.f_back
         return None, lib
+
+    def scratch(self, resolved: Path) -> bool:
+        """A path outside the repo where writing is harmless: temp and system folders, but not the user's repo."""
+        if any(resolved == p or p in resolved.parents for p in self.protect):
+            return False
+        return _is_temp(resolved)
 
     # ---- events ----------------------------------------------------------
 
@@ -189,7 +196,7 @@ def install_io_hooks(rec: Recorder, *, network: bool) -> None:
         shown, inside = info
         writing = any(c in mode for c in "wax+")
         resolved = Path(os.fsdecode(file)).resolve()
-        if not inside and _is_temp(resolved):
+        if not inside and rec.scratch(resolved):
             return _REAL_OPEN(file, mode, *args, **kwargs)  # scratch files in the temp folder are fine
         src, _ = rec.user_source(2)
         if writing and not inside:
@@ -329,7 +336,7 @@ def _wrap_loader(rec: Recorder, module: Any, name: str) -> None:
 
 def _record_load(rec: Recorder, target: Any, info: tuple[str, bool]) -> None:
     resolved = Path(os.fsdecode(target)).resolve()
-    if not info[1] and _is_temp(resolved):
+    if not info[1] and rec.scratch(resolved):
         return
     src, _ = rec.user_source(3)
     if src is None:
@@ -509,7 +516,7 @@ def install_matplotlib_hooks(rec: Recorder) -> None:
         src, _ = rec.user_source(2)
         if info is not None:
             shown, inside = info
-            if not inside and not _is_temp(Path(os.fsdecode(fname)).resolve()):
+            if not inside and not rec.scratch(Path(os.fsdecode(fname)).resolve()):
                 rec.event(FileEvent(action="blocked-write", path=shown, inside_repo=False, source=src))
                 raise PermissionError(f"figproof: saving outside the repo is blocked during a check: {shown}")
         rec._busy = True

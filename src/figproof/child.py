@@ -32,10 +32,13 @@ class Spec:
     memory_limit: int = 0  # MiB, 0 = none
     network: bool = False
     mode: str = "fresh-interpreter"  # or "warm-pool": how the process was started
+    protect: tuple[str, ...] = ()  # folders never written (the user's own repo), even inside the temp folder
 
     @classmethod
     def read(cls, path: Path) -> Spec:
-        return cls(**json.loads(path.read_text(encoding="utf-8")))
+        data = json.loads(path.read_text(encoding="utf-8"))
+        data["protect"] = tuple(data.get("protect", ()))
+        return cls(**data)
 
 
 class _CappedStream:
@@ -201,7 +204,7 @@ def main(argv: list[str] | None = None) -> int:
     from figproof import capture
 
     rec = capture.Recorder(sandbox=Path(spec.sandbox).resolve(), script=spec.script,
-                           events_path=out / "events.jsonl")
+                           events_path=out / "events.jsonl", protect=tuple(Path(p) for p in spec.protect))
     capture.install_io_hooks(rec, network=spec.network)
     capture.install_loader_hooks(rec)
     capture.install_matplotlib_hooks(rec)

@@ -191,7 +191,8 @@ def run_contained(task: Task, options: Options, launch: LaunchFn, mode: str) -> 
         mplconfig.mkdir()
         cwd = sandbox if task.working_dir == "root" else (sandbox / task.script).parent
         spec = {"script": task.script, "sandbox": str(sandbox), "cwd": str(cwd), "out": str(out),
-                "memory_limit": options.memory_limit, "network": options.network, "mode": mode}
+                "memory_limit": options.memory_limit, "network": options.network, "mode": mode,
+                "protect": [str(options.root.resolve())]}
         spec_path = Path(tmp) / "spec.json"
         spec_path.write_text(json.dumps(spec), encoding="utf-8")
         job = Launch(spec=spec_path, cwd=cwd, env=child_env(mplconfig), stdout=out / "stdout.txt",
