@@ -13,7 +13,6 @@ from collections.abc import Iterator
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
 
 from figproof.dip import dip_test
 from figproof.findings import Hit
@@ -530,7 +529,9 @@ def _identify(values: np.ndarray, center: float, below: float, above: float, rto
     if sd0 == 0:
         return ()
     sem = sd1 / math.sqrt(n)
-    t = float(stats.t.ppf(0.975, n - 1))
+    from scipy.special import stdtrit  # imported here: scipy.stats alone costs half a second at start-up
+
+    t = float(stdtrit(n - 1, 0.975))
     symmetric = {
         f"{_SD} (ddof 1)": sd1,
         f"{_SD} (ddof 0)": sd0,
@@ -551,12 +552,14 @@ def _identify(values: np.ndarray, center: float, below: float, above: float, rto
     # has mean x̄, standard deviation sd0/sqrt(n) and skewness m3/(sd0^3 sqrt(n)) exactly, so its quantiles
     # follow from the Cornish-Fisher expansion.  A resampled CI scatters around these by Monte Carlo error,
     # hence the looser tolerance.
+    from scipy.special import ndtri
+
     m3 = float(np.mean((values - values.mean()) ** 3))
     gamma = m3 / (sd0**3 * math.sqrt(n))
     scale = sd0 / math.sqrt(n)
     mean = float(values.mean())
     for level in _BOOT_LEVELS:
-        z = float(stats.norm.ppf(0.5 + level / 200))
+        z = float(ndtri(0.5 + level / 200))
         q_hi = mean + scale * (z + gamma * (z * z - 1) / 6)
         q_lo = mean + scale * (-z + gamma * (z * z - 1) / 6)
         if _close(below, center - q_lo, boot_rtol) and _close(above, q_hi - center, boot_rtol):

@@ -13,7 +13,6 @@ from collections.abc import Iterator
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.spatial import cKDTree
 
 from figproof.colour_science import blend_over, delta_e
 from figproof.findings import Hit
@@ -80,6 +79,8 @@ def overlap(px: np.ndarray, py: np.ndarray, radius: np.ndarray, *, duplicate_px:
         return Overlap(none, none.copy(), True)
     if n <= grid_above:
         xy = np.column_stack([px, py])
+        from scipy.spatial import cKDTree  # imported on use: scipy is slow to import
+
         dist, idx = cKDTree(xy).query(xy, k=2)
         near, other = dist[:, 1], idx[:, 1]
         return Overlap(near < np.maximum(radius, radius[other]), near < duplicate_px, True)
