@@ -555,7 +555,8 @@ def extract_figure(fig: Figure, number: int, rec: Recorder, render_path: Path | 
     if render_path is not None:
         from PIL import Image
 
-        Image.fromarray(np.asarray(canvas.buffer_rgba())).save(render_path)
+        # fast compression: renders are scratch files for the image panels, not deliverables
+        Image.fromarray(np.asarray(canvas.buffer_rgba())).save(render_path, compress_level=1)
         render = render_path.name
     all_samples = [Sample(values=v, origin=o, source=s) for v, o, s in rec.samples]
     axes_list = [ax for ax in fig.get_axes()]
