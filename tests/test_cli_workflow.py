@@ -103,6 +103,28 @@ def test_changed_files_checks_scripts_and_their_readers(tmp_path, monkeypatch) -
     assert [s["path"] for s in json.loads(out.read_text())["scripts"]] == ["figures/other.py"]
 
 
+@pytest.mark.slow
+def test_changed_data_file_selects_the_scripts_that_read_it_last_time(tmp_path, monkeypatch) -> None:
+    """Once a script has run, the inputs it really read (kept with its cached result) decide, not its text."""
+    repo = tmp_path / "repo"
+    (repo / "data").mkdir(parents=True)
+    (repo / "data" / "counts.csv").write_text("a,b\n1,2\n3,4\n")
+    (repo / "indirect.py").write_text("import matplotlib.pyplot as plt, numpy as np\n"
+                                      "name = 'data/' + 'co' + 'unts' + '.csv'\n"
+                                      "plt.plot(np.loadtxt(name, delimiter=',', skiprows=1))\n")
+    (repo / "unrelated.py").write_text("import matplotlib.pyplot as plt\nplt.plot([1, 2])\n")
+    git(repo, "init", "-q")
+    git(repo, "add", ".")
+    git(repo, "commit", "-qm", "x")
+    monkeypatch.chdir(repo)
+    out = tmp_path / "r.json"
+    main(["check", "--changed-files", "data/counts.csv", "--quiet", "--json", str(out)])
+    assert json.loads(out.read_text())["scripts"] == []  # nothing recorded yet, and no script names the file
+    main(["check", "--quiet"])  # a full run records what each script read
+    main(["check", "--changed-files", "data/counts.csv", "--quiet", "--json", str(out)])
+    assert [s["path"] for s in json.loads(out.read_text())["scripts"]] == ["indirect.py"]
+
+
 def test_unknown_git_ref_is_one_line(tmp_path, capsys) -> None:
     (tmp_path / "a.py").write_text("import matplotlib.pyplot as plt\n")
     git(tmp_path, "init", "-q")

@@ -441,6 +441,24 @@ class CachingRunner:
             return f"could not be written ({getattr(exc, 'strerror', None) or type(exc).__name__})"
 
 
+def recorded_dependencies(cache_dir: Path) -> dict[str, set[str]]:
+    """Repo files each cached script depended on when it last ran (inputs read, repo modules imported).
+
+    Used to pick the scripts a changed data file affects; unreadable entries are skipped.
+    """
+    out: dict[str, set[str]] = {}
+    runs = cache_dir / RUNS
+    if not runs.is_dir():
+        return out
+    for key_file in sorted(runs.glob(f"*/{KEY_FILE}")):
+        try:
+            key = json.loads(key_file.read_text(encoding="utf-8"))
+            out.setdefault(str(key["script"]), set()).update(str(f["path"]) for f in key.get("files", ()))
+        except (OSError, ValueError, KeyError, TypeError):
+            continue
+    return out
+
+
 def prune(cache_dir: Path, keep_scripts: Iterable[str]) -> list[str]:
     """Remove the entries of scripts not in ``keep_scripts``, corrupt entries and stale temp folders.
 
@@ -475,4 +493,4 @@ def prune(cache_dir: Path, keep_scripts: Iterable[str]) -> list[str]:
 
 
 __all__ = ["HIT_NOTE", "CachingRunner", "cacheable", "dependencies", "entry_name", "environment_key",
-           "file_sha256", "prune", "run_settings"]
+           "file_sha256", "prune", "recorded_dependencies", "run_settings"]

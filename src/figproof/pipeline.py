@@ -21,7 +21,7 @@ from figproof.accept import (
     notebook_allow_comments,
     parse_allow_comments,
 )
-from figproof.cache import HIT_NOTE, CachingRunner, prune
+from figproof.cache import HIT_NOTE, CachingRunner, prune, recorded_dependencies
 from figproof.comparisons import committed_vs_regenerated, first_vs_second, notebook_outputs
 from figproof.config import Config, load_config
 from figproof.context import Inventory, RunContext
@@ -74,33 +74,43 @@ def select_scripts(config: Config, inventory: Inventory, options: CheckOptions) 
     if options.changed_since is not None:
         changed = tuple(changed_since(config.root, options.changed_since)) + tuple(changed or ())
     if changed is not None:
-        picked = scripts_touched_by(config.root, inventory.scripts, changed)
+        recorded = recorded_dependencies(config.cache_path())
+        picked = scripts_touched_by(config.root, inventory.scripts, changed, recorded)
         chosen = [s for s in picked if chosen is None or s in chosen]
     if options.shard is not None:
         chosen = select_shard(chosen if chosen is not None else list(inventory.scripts), options.shard)
     return None if chosen is None else tuple(chosen)
 
 
-def scripts_touched_by(root: Path, scripts: tuple[str, ...], changed: tuple[str, ...]) -> list[str]:
-    """Scripts that changed, or whose code names a changed file (by its path or its file name).
+def scripts_touched_by(root: Path, scripts: tuple[str, ...], changed: tuple[str, ...],
+                       recorded: dict[str, set[str]] | None = None) -> list[str]:
+    """Scripts that changed, or that depend on a changed file.
 
-    Reading the script's text is a selection heuristic only; what a script really read is
-    recorded when it runs.
+    A script's dependencies are what it read and imported when it last ran (from the result cache,
+    ``recorded``); a script never run before is picked when its code names a changed file by path or
+    file name, a selection heuristic until its first run records what it really reads.
     """
     changed_set = set(changed)
     data = [c for c in changed_set if c not in scripts]
+    recorded = recorded or {}
     picked = []
     for script in scripts:
         if script in changed_set:
             picked.append(script)
-            continue
-        try:
-            text = (root / script).read_text(encoding="utf-8", errors="replace")
-        except OSError:
-            continue
-        if any(d in text or PurePosixPath(d).name in text for d in data):
+        elif script in recorded:
+            if recorded[script] & changed_set:
+                picked.append(script)
+        elif data and _names_any(root / script, data):
             picked.append(script)
     return picked
+
+
+def _names_any(path: Path, files: list[str]) -> bool:
+    try:
+        text = path.read_text(encoding="utf-8", errors="replace")
+    except OSError:
+        return False
+    return any(f in text or PurePosixPath(f).name in text for f in files)
 
 
 def check(path: Path, options: CheckOptions | None = None, *, runner: Runner | None = None,
