@@ -317,3 +317,17 @@ def test_a_default_strip_plot_of_30_per_group_with_median_lines_passes(seed: int
         found = list(r.check(fig, r.defaults()))
         assert not [h for h in found if (h.severity or r.severity) == "error"], (r.id, found)
     assert list(points_hidden.check(fig, points_hidden.defaults())) == []
+
+
+@pytest.mark.parametrize("n", [2, 37, 1500, 1501, 4000])
+def test_nearest_neighbours_match_scipy_ckdtree(n: int) -> None:
+    """Both paths (distance matrix for small sets, k-d tree above) agree with scipy's cKDTree.query(k=2)."""
+    from scipy.spatial import cKDTree
+
+    from figproof.rules.visibility import _nearest
+
+    xy = np.random.default_rng(n).uniform(0, 300, (n, 2))
+    near, other = _nearest(xy)
+    dist, idx = cKDTree(xy).query(xy, k=2)  # reference: scipy documentation, cKDTree.query
+    np.testing.assert_allclose(near, dist[:, 1], rtol=1e-12)
+    np.testing.assert_allclose(np.hypot(*(xy - xy[other]).T), dist[:, 1], rtol=1e-12)

@@ -307,7 +307,9 @@ class CachingRunner:
                 return self._note(run, [HIT_NOTE])
             notes.append(f"result cache entry {_shown(entry, root)} was unreadable; ran the script and replaced it")
         # decided before the run, so an edit made while it runs cannot be stored against the old result
-        imports = local_imports(root, task.script, search_folders(root, task.script, task.working_dir, sys.path))
+        # sys.path[0] is how figproof itself was started (its bin folder, or the cwd under -m), not the child's
+        folders = search_folders(root, task.script, task.working_dir, sys.path[1:])
+        imports = local_imports(root, task.script, folders)
         before = {p: self._hasher.sha256(root / p) for p in imports.files}
         run = self.inner().run(task, options)
         with self._lock:

@@ -238,8 +238,14 @@ def _finish(spec: Spec, rec: Any, error: Any, seconds: float, isolation: tuple[s
     run = ScriptRun(path=spec.script, status=status, seconds=round(seconds, 3),
                     working_dir="script" if Path(spec.cwd).resolve() != Path(spec.sandbox).resolve() else "root",
                     error=error, figures=tuple(figures), events=tuple(rec.events), isolation=isolation,
-                    notes=tuple(notes))
+                    notes=tuple(notes), freetype=_freetype())
     dump_run(run, out)
+
+
+def _freetype() -> str:
+    from matplotlib import ft2font
+
+    return str(getattr(ft2font, "__freetype_version__", ""))
 
 
 if __name__ == "__main__":

@@ -466,6 +466,7 @@ class ScriptRun(Serialisable):
     stderr_tail: str = ""
     isolation: tuple[str, ...] = ()  # e.g. "repo-copy", "memory-cap", "network-off"
     notes: tuple[str, ...] = ()
+    freetype: str = ""  # the FreeType version matplotlib drew text with in the child
 
 
 def dump_run(run: ScriptRun, folder: Path) -> Path:

@@ -95,8 +95,9 @@ def provenance_manifest(checked: Checked) -> dict[str, Any]:
     from figproof.provenance import build_manifest, environment_fingerprint
 
     root = checked.config.root
+    freetype = next((r.freetype for r in checked.result.runs if r.freetype), None)
     return build_manifest(checked.result.runs, checked.context, git_commit=head_commit(root),
-                          environment=environment_fingerprint(), date=check_date(root))
+                          environment=environment_fingerprint(freetype), date=check_date(root))
 
 
 def write_images(checked: Checked, folder: Path, relative_to: Path | None) -> dict[str, str]:

@@ -28,7 +28,7 @@ def _version(distribution: str) -> str | None:
         return None
 
 
-def environment_fingerprint() -> dict[str, Any]:
+def environment_fingerprint(freetype: str | None = None) -> dict[str, Any]:
     """Versions that change how figures come out: Python, matplotlib and its FreeType, numpy, pandas, Pillow.
 
     FreeType is the library matplotlib rasterises text with; a different
@@ -45,6 +45,9 @@ def environment_fingerprint() -> dict[str, Any]:
     }
     for key, dist in _PACKAGES:
         env[key] = _version(dist)
+    if freetype:  # as the child reported it: saves importing matplotlib here
+        env["freetype"] = freetype
+        return env
     try:
         from matplotlib import ft2font  # the compiled text backend; importing it does not import pyplot
 

@@ -59,15 +59,16 @@ class Overlap:
 
     hidden: np.ndarray  # nearest neighbour closer than the larger of the two radii
     duplicate: np.ndarray  # nearest neighbour closer than the duplicate distance
-    exact: bool  # True: nearest neighbours from a k-d tree; False: grid-occupancy estimate
+    exact: bool  # True: exact nearest neighbours; False: grid-occupancy estimate
 
 
 def overlap(px: np.ndarray, py: np.ndarray, radius: np.ndarray, *, duplicate_px: float = DUPLICATE_PX,
             grid_above: float = GRID_ABOVE) -> Overlap:
     """Which markers are hidden by, or duplicate, their nearest neighbour.
 
-    Up to ``grid_above`` points this is exact (scipy ``cKDTree.query`` with
-    k=2).  Above it, a grid-occupancy count: a point counts as hidden when
+    Up to ``grid_above`` points this is exact (the nearest other point, from a
+    distance matrix for small sets and scipy ``cKDTree.query`` with k=2 above
+    ``BRUTE_FORCE_MAX``).  Above ``grid_above``, a grid-occupancy count: a point counts as hidden when
     another point shares its grid cell, with cells of side ``sqrt(pi) * r``
     so that a cell has the area of the disc of radius ``r`` (the median
     radius); for points scattered at random both tests then flag the same
@@ -78,16 +79,28 @@ def overlap(px: np.ndarray, py: np.ndarray, radius: np.ndarray, *, duplicate_px:
     if n < 2:
         return Overlap(none, none.copy(), True)
     if n <= grid_above:
-        xy = np.column_stack([px, py])
-        from scipy.spatial import cKDTree  # imported on use: scipy is slow to import
-
-        dist, idx = cKDTree(xy).query(xy, k=2)
-        near, other = dist[:, 1], idx[:, 1]
+        near, other = _nearest(np.column_stack([px, py]))
         return Overlap(near < np.maximum(radius, radius[other]), near < duplicate_px, True)
     r = float(np.median(radius))
     hidden = _shares_cell(px, py, math.sqrt(math.pi) * r) if r > 0 else none
     duplicate = _shares_cell(px, py, math.sqrt(math.pi) * duplicate_px)
     return Overlap(hidden, duplicate, False)
+
+
+BRUTE_FORCE_MAX = 1500  # below this, a distance matrix is faster than importing scipy (~0.3 s)
+
+
+def _nearest(xy: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Distance to, and index of, each point's nearest other point (the k=2 query of a k-d tree)."""
+    if len(xy) <= BRUTE_FORCE_MAX:
+        d2 = ((xy[:, None, :] - xy[None, :, :]) ** 2).sum(axis=2)
+        np.fill_diagonal(d2, np.inf)
+        other = np.argmin(d2, axis=1)
+        return np.sqrt(d2[np.arange(len(xy)), other]), other
+    from scipy.spatial import cKDTree  # imported on use: scipy is slow to import
+
+    dist, idx = cKDTree(xy).query(xy, k=2)
+    return dist[:, 1], idx[:, 1]
 
 
 def _shares_cell(px: np.ndarray, py: np.ndarray, side: float) -> np.ndarray:
