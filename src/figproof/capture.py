@@ -102,17 +102,23 @@ class Recorder:
         self._file_cache[filename] = result
         return result
 
+    def source_at(self, filename: str, line: int | None) -> Source | None:
+        """The user's-code location of a code file name and line (notebook cells included), or None."""
+        rel = self.repo_path(filename)
+        if rel is None:
+            return None
+        m = CELL_RE.match(filename)
+        return Source(path=rel, line=line, cell=int(m.group("cell")) if m else None)
+
     def user_source(self, depth: int = 2) -> tuple[Source | None, str]:
         """First stack frame in the user's code, and which plotting library (if any) sits between."""
         frame = sys._getframe(depth)
         lib = ""
         while frame is not None:
             name = frame.f_code.co_filename
-            rel = self.repo_path(name)
-            if rel is not None:
-                m = CELL_RE.match(name)
-                cell = int(m.group("cell")) if m else None
-                return Source(path=rel, line=frame.f_lineno, cell=cell), lib
+            src = self.source_at(name, frame.f_lineno)
+            if src is not None:
+                return src, lib
             if not lib:
                 for label, marker in _LIB_MARKERS:
                     if marker in name:

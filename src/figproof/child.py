@@ -104,23 +104,17 @@ def notebook_cells(path: Path) -> list[tuple[int, str, int]]:
 
 
 def _user_frame(tb: Any, rec: Any) -> Any:
-    from figproof.capture import CELL_RE
-    from figproof.model import Source
-
+    """The innermost traceback frame in the user's code: where their script failed."""
     found = None
     for frame, lineno in traceback.walk_tb(tb):
-        name = frame.f_code.co_filename
-        rel = rec.repo_path(name)
-        if rel is not None:
-            m = CELL_RE.match(name)
-            found = Source(path=rel, line=lineno, cell=int(m.group("cell")) if m else None)
+        found = rec.source_at(frame.f_code.co_filename, lineno) or found
     return found
 
 
 def run_user_code(spec: Spec, rec: Any) -> Any:
     """Execute the script or notebook; return a ScriptError or None."""
     from figproof.capture import NetworkRefused
-    from figproof.model import ScriptError, Source
+    from figproof.model import ScriptError
 
     path = Path(spec.sandbox) / spec.script
     try:
@@ -143,21 +137,13 @@ def run_user_code(spec: Spec, rec: Any) -> Any:
             kind = "needs-input"
         message = str(exc).strip().splitlines()[0][:300] if str(exc).strip() else ""
         source = _user_frame(exc.__traceback__, rec)
-        if isinstance(exc, SyntaxError) and exc.filename:
-            rel = rec.repo_path(exc.filename)
-            source = Source(path=rel, line=exc.lineno, cell=_cell_of(exc.filename)) if rel else source
+        if isinstance(exc, SyntaxError) and exc.filename:  # the failing line is in the exception, not a frame
+            source = rec.source_at(exc.filename, exc.lineno) or source
             message = f"{exc.msg} (line {exc.lineno})" if exc.lineno else exc.msg
         if isinstance(exc, NetworkRefused):
             message = message.removeprefix("figproof: ")
         return ScriptError(kind=kind, type=type(exc).__name__, message=message, source=source)
     return None
-
-
-def _cell_of(filename: str) -> int | None:
-    from figproof.capture import CELL_RE
-
-    m = CELL_RE.match(filename)
-    return int(m.group("cell")) if m else None
 
 
 def _run_script(path: Path) -> None:

@@ -283,7 +283,7 @@ def cmd_merge(args: argparse.Namespace) -> int:
         except OSError as exc:
             raise UsageError(f"{name}: cannot read the report ({exc.strerror})") from None
     try:
-        text, passed = write_merged(texts, args)
+        text, passed = write_merged(texts, args, list(args.reports))
     except ShardError as exc:
         raise UsageError(str(exc)) from None
     if not args.quiet:

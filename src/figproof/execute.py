@@ -291,13 +291,8 @@ def _slug(script: str) -> str:
     return script.replace("/", "__")
 
 
-def artifact_dir(options: Options, script: str) -> Path:
-    """Folder holding one script's run record, renders and regenerated files."""
-    return artifact_folder(options.artifacts, script)
-
-
 def artifact_folder(artifacts: Path, script: str) -> Path:
-    """The folder of ``script`` under an artifacts root (same layout as :func:`artifact_dir`)."""
+    """The folder holding one script's run record, renders and regenerated files under an artifacts root."""
     return artifacts / _slug(script)
 
 

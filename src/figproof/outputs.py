@@ -177,12 +177,12 @@ def progress_printer(*, quiet: bool, verbose: bool,
     return report
 
 
-def write_merged(texts: list[str], args: argparse.Namespace) -> tuple[str, bool]:
+def write_merged(texts: list[str], args: argparse.Namespace, names: list[str] | None = None) -> tuple[str, bool]:
     """Merge shard reports and write the requested outputs; return the markdown and the verdict."""
     from figproof.rules import by_id
     from figproof.shard import merge_reports
 
-    merged = merge_reports(texts)
+    merged = merge_reports(texts, names)
     result = result_from_json(merged)
     text = markdown.render(result, rule_summaries={rid: r.summary for rid, r in by_id().items()})
     text += f"\nMerged from {len(texts)} reports; per-script details are in the shards' JSON reports.\n"

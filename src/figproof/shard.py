@@ -58,7 +58,7 @@ def select_shard(scripts: Sequence[str], spec: str) -> list[str]:
 # --------------------------------------------------------------------------
 
 
-def _load(text: str, n: int) -> dict[str, Any]:
+def _load(text: str, n: int | str) -> dict[str, Any]:
     try:
         data = json.loads(text)
     except json.JSONDecodeError as exc:
@@ -97,7 +97,7 @@ def _figures(scripts: list[Any], reports: list[dict[str, Any]]) -> int:
     return sum(r["summary"].get("figures", 0) for r in reports if isinstance(r["summary"].get("figures"), int))
 
 
-def merge_reports(json_texts: Sequence[str]) -> dict[str, Any]:
+def merge_reports(json_texts: Sequence[str], names: Sequence[str] | None = None) -> dict[str, Any]:
     """Combine JSON reports (schema 1) of the shards of one check into one report with one verdict.
 
     Scripts and findings are concatenated (findings re-sorted by path, line, rule); summary counts
@@ -111,7 +111,8 @@ def merge_reports(json_texts: Sequence[str]) -> dict[str, Any]:
     """
     if not json_texts:
         raise ShardError("nothing to merge: give the JSON reports of the shards")
-    reports = [_load(t, n) for n, t in enumerate(json_texts, start=1)]
+    labels = list(names) if names is not None else [str(n) for n in range(1, len(json_texts) + 1)]
+    reports = [_load(t, label) for label, t in zip(labels, json_texts, strict=True)]
     merged: dict[str, Any] = {"schema": REPORT_SCHEMA}
     for key in ("tool", "root"):
         if any(key in r for r in reports):

@@ -11,7 +11,7 @@ from collections.abc import Iterable, Mapping
 
 from figproof.context import RunContext
 from figproof.findings import Finding, Hit
-from figproof.model import FigureModel, ScriptRun, Source
+from figproof.model import ScriptRun, Source
 from figproof.rules import axes, bars, colour, distribution, reproduce, run, visibility
 from figproof.rules.base import Rule
 
@@ -75,8 +75,4 @@ def apply(
     return sorted(found, key=Finding.sort_key)
 
 
-def figure_rules() -> tuple[Rule, ...]:
-    return tuple(r for r in RULES if r.scope == "figure")
-
-
-__all__ = ["RULES", "apply", "by_id", "fingerprint", "figure_rules", "FigureModel"]
+__all__ = ["RULES", "apply", "by_id", "fingerprint"]

@@ -96,25 +96,16 @@ def rule(
     return wrap
 
 
-def knob(knobs: Knobs, rule_: Rule | None, name: str) -> float:
-    """Read a knob, falling back to the rule's default (helper for tests calling checks directly)."""
-    if name in knobs:
-        return float(knobs[name])
-    if rule_ is not None:
-        return rule_.defaults()[name]
-    raise KeyError(name)
-
-
-def counted(part: int, whole: int, singular: str, plural: str) -> str:
-    """'9 of 24 points (38%)': the count, the noun, then the share."""
+def counted(part: int, whole: int, singular: str = "", plural: str = "") -> str:
+    """'9 of 24 points (38%)': the count, the noun (if any), then the share."""
     share = 100.0 * part / whole if whole else 0.0
-    return f"{part} of {whole} {singular if whole == 1 else plural} ({share:.0f}%)"
+    noun = singular if whole == 1 else plural
+    return f"{part} of {whole}{' ' + noun if noun else ''} ({share:.0f}%)"
 
 
 def pct(part: int, whole: int) -> str:
     """Format a share for messages: ``"9 of 24 (38%)"``."""
-    share = 100.0 * part / whole if whole else 0.0
-    return f"{part} of {whole} ({share:.0f}%)"
+    return counted(part, whole)
 
 
-__all__ = ["Knob", "Knobs", "Rule", "counted", "knob", "pct", "rule"]
+__all__ = ["Knob", "Knobs", "Rule", "counted", "pct", "rule"]
