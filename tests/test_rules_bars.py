@@ -77,6 +77,15 @@ def test_seaborn_barplot_is_an_estimate() -> None:
     assert hit.confidence == "likely" and "seaborn" in hit.message
 
 
+def test_grouped_bars_are_one_finding() -> None:
+    """Bars drawn as one set per group (a hue level) are one chart: one finding counting all bars."""
+    first, second = [4.21, 5.13], [3.87, 6.02]
+    fig = b.figure(b.axes(bars=[b.bars(first, positions=[-0.2, 0.8]), b.bars(second, positions=[0.2, 1.2])],
+                          errorbars=[b.errorbars([-0.2, 0.8, 0.2, 1.2], first + second, [0.3] * 4)]))
+    [hit] = hits(fig)
+    assert "4 bars in 2 groups" in hit.message and "4 carry error bars" in hit.message
+
+
 def test_single_measurements_stay_a_note() -> None:
     [hit] = hits(b.figure(b.axes(bars=[b.bars([2.5, 3.25, 1.75])])))
     assert hit.severity == "note" and hit.confidence == "possible"

@@ -162,43 +162,39 @@ def _sample_means(figure: FigureModel, heights: np.ndarray, rtol: float) -> str 
 def bars_for_continuous(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
     """Bar marks that summarise continuous measurements."""
     for ax in figure.axes:
-        if ax.projection != "rectilinear" or ax.is_colorbar:
+        if ax.projection != "rectilinear" or ax.is_colorbar or _stacks_to_whole(ax):
             continue
-        if _stacks_to_whole(ax):
-            continue
-        for i, bars in enumerate(ax.bars):
-            hit = _judge(figure, ax, i, bars, knobs)
-            if hit is not None:
-                yield hit
+        # one finding per axes: grouped bars (one set per hue level) are one chart to the reader
+        summaries = [b for b in ax.bars if _may_summarise(ax, b)]
+        if summaries:
+            yield _judge(figure, ax, summaries, knobs)
 
 
-def _judge(figure: FigureModel, ax: Axes, index: int, bars: BarSet, knobs: Knobs) -> Hit | None:
+def _may_summarise(ax: Axes, bars: BarSet) -> bool:
+    """Bars that are neither a histogram nor counts or shares by their values or their axis label."""
     heights = bars.heights[np.isfinite(bars.heights)]
-    if heights.size == 0 or bars.origin == "hist" or _looks_like_histogram(bars):
-        return None
+    if heights.size == 0 or bars.origin == "hist" or _looks_like_histogram(bars) or _is_whole(heights):
+        return False
     label = _value_label(ax, bars)
-    if label and COUNT_LABEL.search(label):
-        return None
-    if _is_whole(heights):
-        return None
+    return not (label and COUNT_LABEL.search(label))
+
+
+def _judge(figure: FigureModel, ax: Axes, sets: list[BarSet], knobs: Knobs) -> Hit:
+    heights = np.concatenate([b.heights[np.isfinite(b.heights)] for b in sets])
     evidence: list[str] = []
     confidence, severity = "possible", "note"
-    matched = None
-    for table in figure.tables:
-        matched = _group_means(table, heights, float(knobs["mean_rtol"]))
-        if matched:
-            break
-    if not matched:
-        matched = _sample_means(figure, heights, float(knobs["mean_rtol"]))
+    rtol = float(knobs["mean_rtol"])
+    matched = next((m for m in (_group_means(t, heights, rtol) for t in figure.tables) if m), None)
+    matched = matched or _sample_means(figure, heights, rtol)
     if matched:
         evidence.append(f"their heights equal the group means of {matched}")
         confidence, severity = "certain", None
-    with_err = _errorbars_on_tops(ax, bars)
+    with_err = sum(_errorbars_on_tops(ax, b) for b in sets)
     if with_err:
         evidence.append(f"{with_err} carry error bars centred on their tops")
         if confidence != "certain":
             confidence, severity = "likely", None
-    if bars.origin == "seaborn":
+    if any(b.origin == "seaborn" for b in sets):
         evidence.append("seaborn's barplot draws an estimate (the mean by default) of each group")
         if confidence != "certain":
             confidence, severity = "likely", None
@@ -206,12 +202,14 @@ def _judge(figure: FigureModel, ax: Axes, index: int, bars: BarSet, knobs: Knobs
         evidence.append("the heights are not whole numbers")
     n = heights.size
     noun = "bar" if n == 1 else "bars"
+    if len(sets) > 1:
+        noun += f" in {len(sets)} groups"
     where = f"axes {ax.index + 1}" + (f" ('{ax.title}')" if ax.title else "")
     message = f"{where}: {n} {noun} look like a summary of continuous measurements: " + "; ".join(evidence)
     if severity == "note":
         message += " (one value per category may be a single measurement; then accept this finding)"
-    return Hit(message=message, source=bars.source, axes=ax.index, confidence=confidence, severity=severity,
-               key=f"bars:{index}")
+    return Hit(message=message, source=sets[0].source, axes=ax.index, confidence=confidence, severity=severity,
+               key="bars")
 
 
 RULES = (bars_for_continuous,)
