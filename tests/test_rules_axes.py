@@ -304,3 +304,14 @@ def test_logit_axis_fractions_round_trip() -> None:
     assert np.isnan(f[3:]).all()
     # a quarter of the way: odds the geometric mean of 1/9 and 1, i.e. 1/3, so p = 0.25
     assert _from_fraction(0.25, axis) == pytest.approx(0.25)
+
+
+def test_bars_whose_baseline_is_cut_off_are_found() -> None:
+    # common practice (no source): a bar encodes its value by its length from the baseline, so a value axis
+    # that starts above the baseline makes the bars' lengths misleading
+    cut = axes(xlim=(-1, 4), ylim=(400, 700), bars=[bars([480.0, 615.0, 502.0, 640.0])])
+    [hit] = clips(cut)
+    assert hit.message == "4 of 4 bar baselines (100%) lie below the y-limit 400 and are not drawn"
+    assert clips(axes(xlim=(-1, 2), ylim=(0, 700), bars=[bars([480.0, 615.0])])) == []
+    # on a log axis the baseline 0 cannot be drawn at all: not a finding
+    assert clips(axes(xlim=(-1, 2), ylim=(1, 1000), yscale="log", bars=[bars([48.0, 615.0])])) == []

@@ -127,7 +127,8 @@ class _Family:
 
 
 def _families(ax: Axes) -> list[_Family]:
-    """Collect the values a reader expects to see: points, line vertices, bar tops, error-bar and whisker ends."""
+    """Collect the values a reader expects to see: points, line vertices, bar tops and baselines, error-bar and
+    whisker ends."""
     out: list[_Family] = []
 
     def build(singular: str, plural: str, parts: list[tuple[np.ndarray, np.ndarray, Source | None]],
@@ -167,6 +168,7 @@ def _families(ax: Axes) -> list[_Family]:
     build("line vertex", "line vertices", lines, tuple(monotonic))
 
     tops: list[tuple[np.ndarray, np.ndarray, Source | None]] = []
+    bases: list[tuple[np.ndarray, np.ndarray, Source | None]] = []
     for b in ax.bars:
         n = min(b.positions.size, b.heights.size)
         heights = flat(b.heights)[:n]
@@ -176,7 +178,14 @@ def _families(ax: Axes) -> list[_Family]:
         value = (bottoms + heights)[drawn]
         pos = pos[drawn]
         tops.append((pos, value, b.source) if b.orientation != "horizontal" else (value, pos, b.source))
+        # a bar's length from its baseline is its value: a cut-off baseline makes the bar lie about it
+        # (on a log axis the baseline 0 cannot be drawn at all; matplotlib clips it and so do we)
+        value_axis = ax.y if b.orientation != "horizontal" else ax.x
+        if value_axis.scale == "linear":
+            base = bottoms[drawn]
+            bases.append((pos, base, b.source) if b.orientation != "horizontal" else (base, pos, b.source))
     build("bar top", "bar tops", tops)
+    build("bar baseline", "bar baselines", bases)
 
     ends: list[tuple[np.ndarray, np.ndarray, Source | None]] = []
     for e in ax.errorbars:
