@@ -414,3 +414,13 @@ def test_one_finding_per_map() -> None:
     [hit] = list(colour.colormap_not_uniform.check(fig, colour.colormap_not_uniform.defaults()))
     assert hit.message.startswith("colour map 'jet' (used by an image)")
     assert hit.severity is None  # the rule's default, error
+
+
+def test_empty_point_sets_have_no_contrast_to_judge() -> None:
+    """seaborn adds empty scatter sets as legend handles; only drawn markers can lack contrast (WCAG 2.1, 1.4.11)."""
+    pale = (0.95, 0.95, 0.97, 1.0)
+    empty = points([], [], color=pale)
+    fig = figure(axes(points=[empty]))
+    assert list(colour.low_contrast.check(fig, colour.low_contrast.defaults())) == []
+    drawn = figure(axes(points=[points([0.2, 0.5], [0.3, 0.6], color=pale)]))
+    assert len(list(colour.low_contrast.check(drawn, colour.low_contrast.defaults()))) == 1

@@ -500,6 +500,9 @@ def _mark_hits(ax: Axes, figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
             c = np.asarray([ln.color], float)
             marks.append(("line", public_label(ln.label), ratios(c), c, ln.source))
     for ps in ax.points:
+        # an empty point set draws nothing (seaborn adds such sets as legend handles): no contrast to judge
+        if ps.x.size == 0:
+            continue
         if ps.colormap is None and np.asarray(ps.facecolors).size + np.asarray(ps.edgecolors).size:
             faces = ps.facecolors if np.asarray(ps.facecolors).size else ps.edgecolors
             marks.append(("markers", public_label(ps.label), best(ps.facecolors, ps.edgecolors),
