@@ -559,6 +559,26 @@ def install_matplotlib_hooks(rec: Recorder) -> None:
         if hasattr(Axes, name):
             tag_source(name)
 
+    def tag_returned_text(owner: Any, method_name: str) -> None:
+        """Titles and axis labels exist from the start; they belong to the line that set their text."""
+        real = getattr(owner, method_name)
+
+        @functools.wraps(real)
+        def setter(self: Any, *args: Any, **kwargs: Any) -> Any:
+            text = real(self, *args, **kwargs)
+            src, lib = rec.user_source(2)
+            try:
+                text._figproof_source, text._figproof_lib = src, lib
+            except AttributeError:
+                pass
+            return text
+
+        setattr(owner, method_name, setter)
+
+    for name in ("set_title", "set_xlabel", "set_ylabel"):
+        tag_returned_text(Axes, name)
+    tag_returned_text(Figure, "suptitle")
+
     def record_call(method_name: str) -> None:
         real = getattr(Axes, method_name)
 

@@ -387,7 +387,7 @@ def summary_hides_small_n(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
             found.setdefault((s.kind, severity, confidence), []).append((s, drawn, confidence))
         # one finding per kind of summary, severity and confidence in an axes, not one per box
         for (kind, severity, _), items in found.items():
-            yield _small_n_hit(ax, kind, severity, items)
+            yield _small_n_hit(ax, kind, severity, sorted(items, key=lambda item: item[0].position))
 
 
 def _small_n_hit(ax: Axes, kind: str, severity: str, items: list[tuple[_Summary, int, str]]) -> Hit:
