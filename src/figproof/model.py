@@ -14,6 +14,7 @@ origin bottom-left as in matplotlib).  Colours are RGBA floats in [0, 1].
 from __future__ import annotations
 
 import dataclasses
+import functools
 import json
 import types
 import typing
@@ -89,6 +90,12 @@ def _encode(value: Any, store: ArrayStore) -> Any:
     return value
 
 
+@functools.cache
+def _hints(tp: type) -> dict[str, Any]:
+    """Resolved field types of a model class (resolving them is slow; the classes never change)."""
+    return typing.get_type_hints(tp)
+
+
 def _decode(tp: Any, value: Any, store: ArrayStore) -> Any:
     if value is None:
         return None
@@ -102,7 +109,7 @@ def _decode(tp: Any, value: Any, store: ArrayStore) -> Any:
         non_none = [a for a in args if a is not type(None)]
         return _decode(non_none[0], value, store) if len(non_none) == 1 else value
     if dataclasses.is_dataclass(tp):
-        hints = typing.get_type_hints(tp)
+        hints = _hints(tp)
         return tp(**{k: _decode(hints[k], v, store) for k, v in value.items() if k in hints})
     if origin is tuple:
         if len(args) == 2 and args[1] is Ellipsis:
