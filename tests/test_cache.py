@@ -106,6 +106,18 @@ def test_second_run_is_a_hit_and_restores_the_artifact_folder(repo: Path) -> Non
     assert (repo / ".figproof-cache" / ".gitignore").read_text() == "*\n"
 
 
+def test_a_run_kept_without_renderings_serves_only_checks_that_need_none(repo: Path) -> None:
+    inner = FakeRunner()
+    runner = cached(inner, repo)
+    runner.run(TASK, options_for(repo, renders=False))
+    runner.run(TASK, options_for(repo, renders=False))
+    assert inner.calls == 1
+    runner.run(TASK, options_for(repo, renders=True))  # --images needs the pixels: run again, keep them
+    assert inner.calls == 2
+    assert HIT_NOTE in runner.run(TASK, options_for(repo, renders=False)).notes  # renderings serve both
+    assert inner.calls == 2
+
+
 def test_changed_input_content_is_a_miss(repo: Path) -> None:
     inner = FakeRunner()
     runner = cached(inner, repo)

@@ -14,7 +14,8 @@ figproof creates it).  An entry is used only when all of these still match:
   must see a new CSV);
 - the run settings: timeout, memory limit, network, the files kept out of the
   sandbox copy, the task's working-folder mode, plus a fingerprint from the
-  caller for anything else;
+  caller for anything else; and a run kept without figure renderings does not
+  serve a check that needs them (``--images``, ``--twice``);
 - the environment: Python, figproof (version and its own code), numpy, pandas,
   matplotlib, Pillow, and the set of installed distributions.
 
@@ -299,7 +300,8 @@ class CachingRunner:
         key = self._read_key(entry)
         if key is False:
             notes.append(f"result cache entry {_shown(entry, root)} was unreadable; ran the script and replaced it")
-        elif key is not None and self._valid(key, task, root, script_sha, settings):
+        elif key is not None and self._valid(key, task, root, script_sha, settings) and (
+                key.get("renders", True) or not options.renders):  # an entry without renders serves no panel
             run = self._restore(entry, task, options)
             if run is not None:
                 with self._lock:
@@ -328,7 +330,7 @@ class CachingRunner:
             files.setdefault(path, digest)
         key_data = {
             "schema": KEY_SCHEMA, "script": task.script, "script_sha256": script_sha, "settings": settings,
-            "environment": self.environment, "status": run.status,
+            "environment": self.environment, "status": run.status, "renders": options.renders,
             "files": [{"path": p, "sha256": files[p]} for p in sorted(files)],
             "folders": [{"path": f, "names": _folder_names(root / f)} for f in folders],
         }

@@ -69,6 +69,7 @@ class Recorder:
         default_factory=list)
     events: list[FileEvent] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
+    drawn: set[int] = field(default_factory=set)  # figures fully drawn by a savefig and unchanged since
     _skip_dirs: tuple[str, ...] = ()
     _file_cache: dict[str, str | None] = field(default_factory=dict)
     _busy: bool = False
@@ -478,6 +479,31 @@ def _groups(data: Any) -> list[np.ndarray]:
         return []
 
 
+_AGG_FORMATS = frozenset({"png", "jpg", "jpeg", "tif", "tiff", "webp", "raw", "rgba"})
+
+
+def drew_as_displayed(fig: Any, fname: Any, kwargs: dict[str, Any]) -> bool:
+    """Whether a savefig that just returned left ``fig`` drawn exactly as drawing it on its own canvas would.
+
+    That holds for a raster format (painted by Agg) at the figure's own dpi without a tight bounding box:
+    vector formats lay out at 72 dpi, another dpi moves what is placed in pixels when drawn (legend
+    entries, other offset boxes), and a tight bounding box shifts the figure while it is drawn.
+    """
+    import matplotlib
+
+    fmt = kwargs.get("format")
+    if not fmt and isinstance(fname, (str, os.PathLike)):
+        fmt = Path(os.fsdecode(fname)).suffix.lstrip(".")
+    fmt = str(fmt or matplotlib.rcParams["savefig.format"]).lower()
+    dpi = kwargs.get("dpi") or matplotlib.rcParams["savefig.dpi"]
+    bbox = kwargs.get("bbox_inches", matplotlib.rcParams["savefig.bbox"])
+    try:
+        same_dpi = dpi == "figure" or float(dpi) == float(fig.dpi)
+    except (TypeError, ValueError):
+        return False
+    return fmt in _AGG_FORMATS and same_dpi and not bbox
+
+
 def install_matplotlib_hooks(rec: Recorder) -> None:
     """Pin the Agg backend and wrap the Axes/Figure methods that capture needs."""
     import matplotlib
@@ -526,10 +552,16 @@ def install_matplotlib_hooks(rec: Recorder) -> None:
                 rec.event(FileEvent(action="blocked-write", path=shown, inside_repo=False, source=src))
                 raise PermissionError(f"figproof: saving outside the repo is blocked during a check: {shown}")
         rec._busy = True
+        rec.drawn.discard(id(self))
         try:
             result = real_savefig(self, fname, *args, **kwargs)
         finally:
             rec._busy = False
+        if drew_as_displayed(self, fname, kwargs):
+            # restoring the figure's colours after saving marked it stale; clear that mark, so any later change
+            # to any artist (it propagates up to the figure) shows as stale again
+            self.stale = False
+            rec.drawn.add(id(self))
         if info is not None:
             fmt = kwargs.get("format") or Path(os.fsdecode(fname)).suffix.lstrip(".").lower() or "png"
             rec.outputs.setdefault(id(self), []).append(info[0])

@@ -33,6 +33,7 @@ class Spec:
     network: bool = False
     mode: str = "fresh-interpreter"  # or "warm-pool": how the process was started
     protect: tuple[str, ...] = ()  # folders never written (the user's own repo), even inside the temp folder
+    renders: bool = True  # write each figure's pixels (for image panels and --twice); costs a full draw
 
     @classmethod
     def read(cls, path: Path) -> Spec:
@@ -215,7 +216,7 @@ def _finish(spec: Spec, rec: Any, error: Any, seconds: float, isolation: tuple[s
     renders.mkdir(exist_ok=True)
     for number, fig in enumerate(rec.figures, start=1):
         try:
-            figures.append(extract_figure(fig, number, rec, renders / f"figure-{number}.png"))
+            figures.append(extract_figure(fig, number, rec, renders, render=spec.renders))
         except MemoryError:
             notes.append(f"figure {number}: ran out of memory while drawing it")
         except Exception as exc:  # noqa: BLE001 - one undrawable figure must not lose the others

@@ -185,6 +185,7 @@ def do_check(path: Path, args: argparse.Namespace, **option_overrides: object): 
     options = CheckOptions(jobs=getattr(args, "jobs", None), skip_copy=tuple(s for s in skip if s),
                            shard=getattr(args, "shard", None), changed_since=getattr(args, "changed_since", None),
                            twice=getattr(args, "twice", False), cache=not getattr(args, "no_cache", False),
+                           renders=bool(getattr(args, "images", None)) or getattr(args, "twice", False),
                            **option_overrides)  # type: ignore[arg-type]
     try:
         return check(path, options, progress=_progress(args))

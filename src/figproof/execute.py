@@ -63,6 +63,7 @@ class Options:
     network: bool = False
     jobs: int = 1
     skip_copy: tuple[str, ...] = ()  # extra repo-relative folders not to copy (e.g. the report folder)
+    renders: bool = True  # keep each figure's pixels (image panels, --twice); without, no figure is painted twice
 
 
 class Runner(Protocol):
@@ -192,7 +193,7 @@ def run_contained(task: Task, options: Options, launch: LaunchFn, mode: str) -> 
         cwd = sandbox if task.working_dir == "root" else (sandbox / task.script).parent
         spec = {"script": task.script, "sandbox": str(sandbox), "cwd": str(cwd), "out": str(out),
                 "memory_limit": options.memory_limit, "network": options.network, "mode": mode,
-                "protect": [str(options.root.resolve())]}
+                "protect": [str(options.root.resolve())], "renders": options.renders}
         spec_path = Path(tmp) / "spec.json"
         spec_path.write_text(json.dumps(spec), encoding="utf-8")
         job = Launch(spec=spec_path, cwd=cwd, env=child_env(mplconfig), stdout=out / "stdout.txt",

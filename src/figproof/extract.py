@@ -544,13 +544,18 @@ def _match_sample(samples: list[Sample], median: float, origin: str, used: set[i
     return None
 
 
-def extract_figure(fig: Figure, number: int, rec: Recorder, render_path: Path | None) -> FigureModel:
-    """Draw ``fig`` once and return its model; also write a PNG rendering when asked."""
+def extract_figure(fig: Figure, number: int, rec: Recorder, folder: Path | None, *,
+                   render: bool = True) -> FigureModel:
+    """Return the model of ``fig`` (drawn as needed; see :func:`draw_for_extraction`).
+
+    With a ``folder``, ``render`` writes the figure's pixels there as ``figure-N.png``, and a notebook's
+    figure is also saved as its inline display would save it (``figure-N-inline.png``).
+    """
     from matplotlib.backends.backend_agg import FigureCanvasAgg
 
     canvas = fig.canvas if isinstance(fig.canvas, FigureCanvasAgg) else FigureCanvasAgg(fig)
-    canvas.draw()
-    renderer = canvas.get_renderer()
+    render_path = folder / f"figure-{number}.png" if folder is not None and render else None
+    renderer = draw_for_extraction(fig, canvas, already_drawn=id(fig) in rec.drawn, pixels=render_path is not None)
     render = None
     if render_path is not None:
         from PIL import Image
@@ -575,9 +580,9 @@ def extract_figure(fig: Figure, number: int, rec: Recorder, render_path: Path | 
             extractor.add_text(t, "text", in_axes=False)
         fig_texts = extractor.texts
     inline = None
-    if render_path is not None and rec.script.endswith(".ipynb"):
+    if folder is not None and rec.script.endswith(".ipynb"):
         # how a notebook's inline display saves a figure: PNG, tight bounding box, the figure's dpi
-        inline_path = render_path.with_name(render_path.stem + "-inline.png")
+        inline_path = folder / f"figure-{number}-inline.png"
         save = getattr(Figure.savefig, "__wrapped__", Figure.savefig)  # the unhooked savefig: not a user output
         save(fig, inline_path, format="png", bbox_inches="tight")
         inline = inline_path.name
@@ -587,6 +592,25 @@ def extract_figure(fig: Figure, number: int, rec: Recorder, render_path: Path | 
                        outputs=tuple(dict.fromkeys(rec.outputs.get(id(fig), []))), samples=samples, calls=calls,
                        tables=tables, render=render, source=rec.figure_sources.get(id(fig)),
                        texts=tuple(fig_texts), inline_render=inline)
+
+
+def draw_for_extraction(fig: Figure, canvas: Any, *, already_drawn: bool, pixels: bool) -> Any:
+    """Bring ``fig`` to its drawn state and return an Agg renderer at the figure's dpi for measuring text.
+
+    Extraction needs what only a draw settles (tick labels, layout-engine positions, artists that plotting
+    libraries add or remove while drawing) and a renderer to measure text; the pixels are needed only for
+    a rendering.  So: with ``pixels``, a full Agg draw; else, when the script's own savefig drew the figure,
+    nothing changed it since (``already_drawn`` and the figure is not stale) and no layout engine moves its
+    axes with the dpi, no draw at all; else a draw that lays everything out but paints nothing
+    (matplotlib's ``draw_without_rendering``).  All three give the same model.
+    """
+    # a layout engine places the axes for the dpi it ran at: the script's savefig may have used another
+    reuse = already_drawn and not fig.stale and fig.get_layout_engine() is None
+    if pixels:
+        canvas.draw()
+    elif not reuse:
+        fig.draw_without_rendering()
+    return canvas.get_renderer()
 
 
 def _reindex_samples(models: list[Axes], samples: list[Sample]) -> tuple[list[Axes], tuple[Sample, ...]]:

@@ -6,6 +6,7 @@ The reporters in :mod:`figproof.report` render the :class:`CheckResult`;
 
 from __future__ import annotations
 
+import functools
 import tempfile
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
@@ -47,6 +48,7 @@ class CheckOptions:
     twice: bool = False  # run every script a second time to find nondeterministic output
     cache: bool = False  # reuse results of scripts whose script, inputs and environment did not change
     skip_copy: tuple[str, ...] = ()
+    renders: bool = True  # keep each figure's pixels: needed for image panels and --twice, costs a full draw
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -129,7 +131,8 @@ def check(path: Path, options: CheckOptions | None = None, *, runner: Runner | N
     tasks = plan(config, inventory, select_scripts(config, inventory, options))
     exec_options = Options(root=config.root, artifacts=artifacts, timeout=config.timeout,
                            memory_limit=config.memory_limit, network=config.network,
-                           jobs=options.jobs or config.jobs, skip_copy=(*options.skip_copy, config.cache_dir))
+                           jobs=options.jobs or config.jobs, skip_copy=(*options.skip_copy, config.cache_dir),
+                           renders=options.renders or options.twice)
     selected = options.scripts is not None or options.changed is not None or options.changed_since is not None \
         or options.shard is not None
     with _runners(config, options, runner) as (active, bare):
@@ -202,8 +205,9 @@ def build_context(config: Config, inventory: Inventory, runs: tuple[ScriptRun, .
         second_runs=second_runs, rerun_comparisons=reruns, running_version=matplotlib_version())
 
 
+@functools.cache
 def matplotlib_version() -> str:
-    """The matplotlib version the children run with (same environment), without importing it."""
+    """The matplotlib version the children run with (same environment), without importing it (read once)."""
     from importlib.metadata import PackageNotFoundError, version
 
     try:
