@@ -2,8 +2,9 @@
 
 Containment (best effort, not a security boundary):
 
-- each script runs on its own temporary copy of the repo, so the user's
-  working tree is never written;
+- each script runs on a temporary copy of the repo, so the user's working
+  tree is never written; a copy serves the next script only after whatever
+  the script changed in it has been put back (see :mod:`figproof.sandbox`);
 - the child starts in a new session; on timeout the parent kills the whole
   process group (SIGTERM, a short grace, SIGKILL, reap), and after a normal
   exit it kills what the script left behind in that group;
@@ -35,11 +36,10 @@ from pathlib import Path
 from typing import Protocol
 
 from figproof.model import FileEvent, ScriptError, ScriptRun, load_run
+from figproof.sandbox import SandboxPool
 
 GRACE_SECONDS = 1.0
 TAIL_BYTES = 4000
-COPY_IGNORE = (".git", ".hg", ".svn", ".venv", "venv", "__pycache__", "node_modules", ".figproof-cache",
-               ".pytest_cache", ".mypy_cache", ".ipynb_checkpoints", ".tox", ".nox", "*.egg-info")
 _SIGNAL_NAMES = {getattr(signal, n): n for n in ("SIGSEGV", "SIGABRT", "SIGBUS", "SIGFPE", "SIGILL", "SIGKILL",
                                                   "SIGTERM") if hasattr(signal, n)}
 
@@ -64,6 +64,7 @@ class Options:
     jobs: int = 1
     skip_copy: tuple[str, ...] = ()  # extra repo-relative folders not to copy (e.g. the report folder)
     renders: bool = True  # keep each figure's pixels (image panels, --twice); without, no figure is painted twice
+    sandboxes: SandboxPool | None = None  # repo copies shared by the tasks of one check (one copy per task if None)
 
 
 class Runner(Protocol):
@@ -94,22 +95,6 @@ def child_env(mplconfig: Path) -> dict[str, str]:
         "VECLIB_MAXIMUM_THREADS": "1",
     })
     return env
-
-
-def copy_repo(root: Path, dest: Path, skip: Sequence[str] = ()) -> None:
-    """Copy the repo to ``dest`` without VCS folders, virtual environments and caches."""
-    skipped = {(root / s).resolve() for s in skip}
-
-    def ignore(folder: str, names: list[str]) -> set[str]:
-        base = Path(folder)
-        out = set(shutil.ignore_patterns(*COPY_IGNORE)(folder, names))
-        for n in names:
-            p = base / n
-            if p.resolve() in skipped or (p.is_dir() and (p / "pyvenv.cfg").exists()):
-                out.add(n)
-        return out
-
-    shutil.copytree(root, dest, ignore=ignore, symlinks=True)
 
 
 def _tail(path: Path) -> str:
@@ -185,16 +170,16 @@ def run_contained(task: Task, options: Options, launch: LaunchFn, mode: str) -> 
     if out.exists():
         shutil.rmtree(out)
     out.mkdir(parents=True)
-    with tempfile.TemporaryDirectory(prefix="figproof-") as tmp:
-        sandbox = Path(tmp) / "repo"
-        copy_repo(options.root, sandbox, options.skip_copy)
-        mplconfig = Path(tmp) / "mplconfig"
-        mplconfig.mkdir()
+    pool = options.sandboxes or SandboxPool(options.root, options.skip_copy, reuse=False)
+    box = pool.acquire()
+    try:
+        sandbox = box.repo
+        mplconfig = Path(tempfile.mkdtemp(prefix="mplconfig-", dir=box.base))  # never shared between scripts
         cwd = sandbox if task.working_dir == "root" else (sandbox / task.script).parent
         spec = {"script": task.script, "sandbox": str(sandbox), "cwd": str(cwd), "out": str(out),
                 "memory_limit": options.memory_limit, "network": options.network, "mode": mode,
                 "protect": [str(options.root.resolve())], "renders": options.renders}
-        spec_path = Path(tmp) / "spec.json"
+        spec_path = box.base / "spec.json"
         spec_path.write_text(json.dumps(spec), encoding="utf-8")
         job = Launch(spec=spec_path, cwd=cwd, env=child_env(mplconfig), stdout=out / "stdout.txt",
                      stderr=out / "stderr.txt")
@@ -203,6 +188,10 @@ def run_contained(task: Task, options: Options, launch: LaunchFn, mode: str) -> 
         seconds = time.perf_counter() - started
         run = _collect(task, out, returncode, timed_out, seconds, options.timeout)
         _keep_outputs(run, sandbox, out / "regenerated")
+    finally:
+        pool.release(box)
+        if options.sandboxes is None:
+            pool.close()
     return run
 
 
@@ -321,6 +310,10 @@ def execute_all(tasks: Iterable[Task], options: Options, runner: Runner | None =
         return []
     owned = runner is None
     active: Runner = default_runner() if runner is None else runner
+    sandboxes = None
+    if options.sandboxes is None:
+        sandboxes = SandboxPool(options.root, options.skip_copy, jobs=options.jobs)
+        options = replace(options, sandboxes=sandboxes)
     results: list[ScriptRun | None] = [None] * len(tasks)
     done = 0
     lock = threading.Lock()
@@ -346,4 +339,6 @@ def execute_all(tasks: Iterable[Task], options: Options, runner: Runner | None =
         close = getattr(active, "close", None)
         if owned and callable(close):
             close()
+        if sandboxes is not None:
+            sandboxes.close()
     return [r for r in results if r is not None]

@@ -41,6 +41,7 @@ from figproof.discover import discover
 from figproof.execute import FreshInterpreter, Options, Task, execute_all
 from figproof.pipeline import build_context
 from figproof.pool import WarmPool
+from figproof.sandbox import SandboxPool
 
 HEADER = """\
 import time
@@ -164,23 +165,24 @@ def cli_check(root: Path, out: Path, runner: str, *flags: str) -> tuple[float, i
 def overhead(root: Path, runner: object, work: Path) -> tuple[float, float, float, float]:
     """Median figproof seconds per script, median compute, median overhead (ms) and median rules time (ms).
 
-    Each script is run alone (jobs=1) and timed from the call to the runner until it returns: the sandbox
-    copy, starting and reaping the child, reading its run record back and keeping its outputs all count.
+    Each script is run alone (jobs=1) and timed from the call to the runner until it returns: getting a
+    sandbox copy (made, or restored after the previous script), starting and reaping the child, reading its run record back and keeping its outputs all count.
     Comparing its figures with the committed ones and the rules on that run are timed too and counted as
     overhead.
     """
     config = load_config(root)
     inventory = discover(config)
-    # as `figproof check` runs scripts when no images are asked for: no renderings kept
-    options = Options(root=config.root, artifacts=work / "art", jobs=1, renders=False)
     runs, walls = [], []
-    for script in inventory.scripts:
-        started = time.perf_counter()
-        run = runner.run(Task(script=script), options)  # type: ignore[attr-defined]
-        walls.append(time.perf_counter() - started)
-        if run.status != "ok":
-            sys.exit(f"{run.path}: {run.status} {run.error}")
-        runs.append(run)
+    with SandboxPool(config.root, jobs=1) as sandboxes:  # the repo copies, as execute_all shares them
+        # as `figproof check` runs scripts when no images are asked for: no renderings kept
+        options = Options(root=config.root, artifacts=work / "art", jobs=1, renders=False, sandboxes=sandboxes)
+        for script in inventory.scripts:
+            started = time.perf_counter()
+            run = runner.run(Task(script=script), options)  # type: ignore[attr-defined]
+            walls.append(time.perf_counter() - started)
+            if run.status != "ok":
+                sys.exit(f"{run.path}: {run.status} {run.error}")
+            runs.append(run)
     totals, computes, extra, rule_times = [], [], [], []
     for run, wall in zip(runs, walls):
         started = time.perf_counter()
