@@ -275,3 +275,39 @@ def test_execute_all_leaves_no_process_behind(tmp_path: Path, monkeypatch: pytes
     runs = run_all(repo, ["s0.py", "s1.py", "s2.py"], tmp_path / "art", None, jobs=2)
     assert [r.status for r in runs] == ["ok"] * 3
     assert our_children() == []
+
+
+def _children_of(pid: int) -> list[int]:
+    out = []
+    for entry in os.listdir("/proc"):
+        if entry.isdigit():
+            try:
+                fields = Path(f"/proc/{entry}/stat").read_text().rsplit(")", 1)[1].split()
+            except OSError:
+                continue
+            if int(fields[1]) == pid and fields[0] != "Z":
+                out.append(int(entry))
+    return out
+
+
+@pytest.mark.slow
+@posix_only
+@pytest.mark.skipif(not Path("/proc/self/stat").exists(), reason="reads /proc (Linux) to list processes")
+def test_a_spare_child_killed_from_outside_is_replaced(tmp_path: Path) -> None:
+    # the server forks the next script's child ahead of its request; if that spare dies, the next run forks anew
+    import signal
+    import time
+
+    repo = write_repo(tmp_path / "repo", {f"s{i}.py": f"import matplotlib.pyplot as plt\nplt.plot([{i}, 2])\n"
+                                          for i in range(2)})
+    with WarmPool() as pool:
+        server = pool._proc.pid if pool._proc else 0
+        deadline = time.monotonic() + 10
+        while not (spares := _children_of(server)) and time.monotonic() < deadline:
+            time.sleep(0.05)
+        assert len(spares) == 1  # exactly one child waits before any request
+        os.kill(spares[0], signal.SIGKILL)
+        runs = run_all(repo, ["s0.py", "s1.py"], tmp_path / "art", pool)
+        assert [r.status for r in runs] == ["ok", "ok"]
+        assert all("warm-pool" in r.isolation for r in runs)
+    assert _children_of(server) == []

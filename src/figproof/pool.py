@@ -9,6 +9,10 @@ They talk in JSON lines over the server's stdin/stdout pipes (never pickle: the 
                       {"id": 3, "pid": 4567}                 the child was forked
                       {"id": 3, "exit": 0}                   the child ended (exit code, or -signal)
 
+The server keeps one child forked ahead of time (a spare): it has already started its own session, dropped the
+server's descriptors and reseeded numpy, and waits on a pipe for its request, so a script's run does not wait
+for the fork; the next spare is forked while that script runs.  A spare that dies unused is replaced.
+
 Each forked child gets the containment of a fresh interpreter (see :mod:`figproof.execute`): a new session,
 stdin on /dev/null, stdout/stderr to files, the per-script environment, the sandbox copy as working folder;
 :func:`figproof.child.main` then sets the memory cap and the network block and runs the script.  The server
@@ -316,6 +320,7 @@ def serve() -> int:
     rcfile = matplotlib.matplotlib_fname()
     fds = (proto_in, proto_out, wake_r, wake_w)
     children: dict[int, int] = {}  # pid -> request id
+    spare = _Spare.fork(fds, rcfile)
     _send(proto_out, {"ready": True, "pid": os.getpid()})
     buffer = b""
     open_input = True
@@ -326,11 +331,15 @@ def serve() -> int:
                 os.read(wake_r, 4096)
             except BlockingIOError:
                 pass
-        _reap(children, proto_out)
+        if _reap(children, proto_out, spare.pid if spare else None):
+            spare = None  # the spare died before it was used (killed from outside): fork another when needed
         if proto_in in ready:
             chunk = os.read(proto_in, 1 << 16)
             if not chunk:
                 open_input = False
+                if spare is not None:
+                    spare.dismiss()
+                    spare = None
                 for pid in children:
                     _killpg(pid, signal.SIGKILL)
                 continue
@@ -342,15 +351,92 @@ def serve() -> int:
                 except ValueError:
                     continue
                 if isinstance(req, dict) and req.get("op") == "run":
-                    pid = os.fork()
-                    if pid == 0:
-                        try:
-                            _child(req, fds, rcfile)
-                        finally:
-                            os._exit(70)
+                    child = spare if spare is not None and spare.hand(line) else None
+                    if child is None:
+                        pid = os.fork()
+                        if pid == 0:
+                            try:
+                                _prepare_child(fds)
+                                _run_child(req, rcfile)
+                            finally:
+                                os._exit(70)
+                    else:
+                        pid = child.pid
                     children[pid] = req["id"]
                     _send(proto_out, {"id": req["id"], "pid": pid})
+                    # the next script's child is forked now, while this one runs
+                    spare = _Spare.fork(fds, rcfile)
     return 0
+
+
+class _Spare:
+    """A child forked ahead of its request: it has set up everything that does not depend on the script and
+    waits on a pipe for the request (one JSON line), so a run does not wait for the fork."""
+
+    def __init__(self, pid: int, pipe: int) -> None:
+        self.pid = pid
+        self.pipe = pipe
+
+    @classmethod
+    def fork(cls, fds: tuple[int, ...], rcfile: str) -> _Spare | None:
+        try:
+            read_end, write_end = os.pipe()
+            pid = os.fork()
+        except OSError:
+            return None  # no spare: requests fork their child directly
+        if pid == 0:
+            try:
+                os.close(write_end)
+                _prepare_child(fds)
+                req = _await_request(read_end)
+                if req is not None:
+                    _run_child(req, rcfile)
+                os._exit(0)
+            finally:
+                os._exit(70)
+        os.close(read_end)
+        return cls(pid, write_end)
+
+    def hand(self, line: bytes) -> bool:
+        """Give the spare its request; False when it is gone (the caller forks a child instead)."""
+        try:
+            data = line + b"\n"
+            while data:
+                data = data[os.write(self.pipe, data):]
+            return True
+        except OSError:
+            try:
+                os.kill(self.pid, signal.SIGKILL)  # reaped with the other children
+            except OSError:
+                pass
+            return False
+        finally:
+            os.close(self.pipe)
+
+    def dismiss(self) -> None:
+        """No more requests: stop the spare and reap it (it never ran anything)."""
+        try:
+            os.close(self.pipe)
+            os.kill(self.pid, signal.SIGKILL)
+            os.waitpid(self.pid, 0)
+        except OSError:
+            pass
+
+
+def _await_request(fd: int) -> dict[str, Any] | None:
+    """In a spare: block until the server sends the request; None at end-of-file (the server is stopping)."""
+    data = b""
+    while True:
+        chunk = os.read(fd, 1 << 16)
+        if not chunk:
+            break
+        data += chunk
+    os.close(fd)
+    try:
+        req = json.loads(data) if data.strip() else None
+    except ValueError:
+        return None
+    return req if isinstance(req, dict) else None
 
 
 def _warm_up() -> None:
@@ -378,19 +464,22 @@ def _warm_up() -> None:
         pass
 
 
-def _reap(children: dict[int, int], proto_out: int) -> None:
-    """Reap ended children; kill each one's process group first, while its leader is still a zombie."""
+def _reap(children: dict[int, int], proto_out: int, spare: int | None = None) -> bool:
+    """Reap ended children; kill each one's process group first, while its leader is still a zombie.
+
+    Returns True when the unused spare child (pid ``spare``) was among them."""
     peek = getattr(os, "waitid", None)
+    spare_gone = False
     while True:
         if peek is not None:
             try:
                 info = peek(os.P_ALL, 0, os.WEXITED | os.WNOHANG | os.WNOWAIT)
             except ChildProcessError:
-                return
+                return spare_gone
             if info is None:
-                return
+                return spare_gone
             pid = info.si_pid
-            if pid in children:
+            if pid in children or pid == spare:
                 _killpg(pid, signal.SIGKILL)
             try:
                 _, status = os.waitpid(pid, 0)
@@ -400,11 +489,12 @@ def _reap(children: dict[int, int], proto_out: int) -> None:
             try:
                 pid, status = os.waitpid(-1, os.WNOHANG)
             except ChildProcessError:
-                return
+                return spare_gone
             if pid == 0:
-                return
-            if pid in children:
+                return spare_gone
+            if pid in children or pid == spare:
                 _killpg(pid, signal.SIGKILL)
+        spare_gone = spare_gone or pid == spare
         ident = children.pop(pid, None)
         if ident is not None:  # others are orphaned grandchildren adopted by this subreaper
             _send(proto_out, {"id": ident, "exit": os.waitstatus_to_exitcode(status)})
@@ -430,10 +520,10 @@ def _set_subreaper() -> None:
         pass
 
 
-def _child(req: dict[str, Any], fds: tuple[int, ...], rcfile: str) -> None:
-    """In the forked child: contain the process like a fresh interpreter, then run the script."""
-    import io
-    import time
+def _prepare_child(fds: tuple[int, ...]) -> None:
+    """In a forked child, before its request is known: a session of its own, no server descriptors or signal
+    handlers, stdin on /dev/null, fresh random state."""
+    import numpy as np
 
     os.setsid()
     signal.set_wakeup_fd(-1)
@@ -441,9 +531,19 @@ def _child(req: dict[str, Any], fds: tuple[int, ...], rcfile: str) -> None:
     for fd in fds:
         os.close(fd)
     stdin = os.open(os.devnull, os.O_RDONLY)
+    os.dup2(stdin, 0)
+    os.close(stdin)
+    np.random.seed()  # numpy's global generator was seeded once in the server; `random` reseeds at fork itself
+
+
+def _run_child(req: dict[str, Any], rcfile: str) -> None:
+    """In the forked child: contain the process like a fresh interpreter, then run the script."""
+    import io
+    import time
+
     stdout = os.open(req["stdout"], os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o644)
     stderr = os.open(req["stderr"], os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o644)
-    for src, dest in ((stdin, 0), (stdout, 1), (stderr, 2)):
+    for src, dest in ((stdout, 1), (stderr, 2)):
         os.dup2(src, dest)
         os.close(src)
     # the same text streams a PYTHONUNBUFFERED interpreter would have
@@ -470,9 +570,7 @@ def _fresh_state(server_rcfile: str) -> None:
     import warnings
 
     import matplotlib
-    import numpy as np
 
-    np.random.seed()  # numpy's global generator was seeded once in the server; `random` reseeds at fork itself
     # matplotlib reads a matplotlibrc in the working folder at import; the server imported it elsewhere
     rcfile = matplotlib.matplotlib_fname()
     if rcfile != server_rcfile:
