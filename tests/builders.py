@@ -11,7 +11,7 @@ from typing import Any
 
 import numpy as np
 
-from figproof.model import (
+from figproof.model.records import (
     Axes,
     Axis,
     BarSet,
@@ -106,7 +106,7 @@ __all__ = ["Axes", "Axis", "BarSet", "Box", "ColorMapping", "ErrorBars", "Figure
 # added for the axes and visibility rule tests
 # --------------------------------------------------------------------------
 
-from figproof.model import Patch  # noqa: E402  (kept with the helpers that use it)
+from figproof.model.records import Patch  # noqa: E402  (kept with the helpers that use it)
 
 
 def axes_with(x: Axis | None = None, y: Axis | None = None, *, index: int = 0, box=BOX, **fields: Any) -> Axes:

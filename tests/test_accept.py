@@ -9,7 +9,7 @@ from pathlib import Path
 import nbformat
 import pytest
 
-from figproof.accept import (
+from figproof.policy.accept import (
     AcceptedFileError,
     Entry,
     allow_key,
@@ -19,7 +19,7 @@ from figproof.accept import (
     parse_allow_comments,
     write_accepted,
 )
-from figproof.findings import Finding
+from figproof.model.findings import Finding
 from figproof.rules import fingerprint
 
 KNOWN = {"bars-for-continuous", "points-hidden", "axis-clips-data"}

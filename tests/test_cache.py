@@ -3,7 +3,7 @@
 The unit tests use a fake inner runner that writes an artifact folder with
 ``dump_run`` (no child process); digests are checked against :mod:`hashlib`
 (the Python standard library's SHA-256, FIPS 180-4).  One end-to-end test runs
-a real script that reads a CSV through :class:`figproof.execute.FreshInterpreter`.
+a real script that reads a CSV through :class:`figproof.run.execute.FreshInterpreter`.
 """
 
 from __future__ import annotations
@@ -19,7 +19,7 @@ from pathlib import Path
 
 import pytest
 
-from figproof.cache import (
+from figproof.run.cache import (
     HIT_NOTE,
     CachingRunner,
     cacheable,
@@ -29,9 +29,9 @@ from figproof.cache import (
     file_sha256,
     prune,
 )
-from figproof.execute import FreshInterpreter, Options, Task, artifact_folder
-from figproof.imports import local_imports, search_folders
-from figproof.model import FileEvent, ScriptError, ScriptRun, dump_run
+from figproof.run.execute import FreshInterpreter, Options, Task, artifact_folder
+from figproof.discover.imports import local_imports, search_folders
+from figproof.model.records import FileEvent, ScriptError, ScriptRun, dump_run
 
 ENV = {"python": "3.11.7", "figproof": "test"}  # fixed, so the tests do not depend on this interpreter
 
@@ -285,7 +285,7 @@ def test_refused_writes_fall_back_to_running(repo: Path, monkeypatch: pytest.Mon
     def refuse(*args: object, **kwargs: object) -> str:
         raise PermissionError(13, "Permission denied")
 
-    monkeypatch.setattr("figproof.cache.tempfile.mkdtemp", refuse)
+    monkeypatch.setattr("figproof.run.cache.tempfile.mkdtemp", refuse)
     run = runner.run(TASK, options_for(repo))
     assert run.status == "ok"
     assert run.notes == ("result cache .figproof-cache could not be written (Permission denied); "
@@ -363,7 +363,7 @@ def test_environment_fingerprint_matches_the_packages_and_imports_no_matplotlib(
     env = environment_key()
     assert env["numpy"] == numpy.__version__  # the package's own version attribute
     assert env["python"] == "%d.%d.%d" % sys.version_info[:3]
-    code = ("import sys, figproof.cache as c; c.environment_key(); "
+    code = ("import sys, figproof.run.cache as c; c.environment_key(); "
             "print('matplotlib' in sys.modules, 'pandas' in sys.modules)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.split() == ["False", "False"]

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 from colorspacious import cspace_convert, deltaE
 
-from figproof import colour_science as cs
+from figproof.science import colour as cs
 
 
 def rgb(hex_: str) -> np.ndarray:

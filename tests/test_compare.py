@@ -21,7 +21,7 @@ import numpy as np
 import pytest
 from PIL import Image, ImageChops, PngImagePlugin
 
-from figproof.compare import (
+from figproof.compare.files import (
     OutputComparison,
     compare_image_bytes,
     compare_output,
@@ -206,7 +206,7 @@ def test_rms_matches_matplotlib_compare_images_with_alpha(tmp_path: Path) -> Non
 
 
 def test_rms_in_blocks_equals_one_pass(monkeypatch: pytest.MonkeyPatch) -> None:
-    import figproof.compare as compare
+    import figproof.compare.files as compare
 
     rng = np.random.default_rng(5)
     a = rng.integers(0, 256, (97, 31, 3), dtype=np.uint8)

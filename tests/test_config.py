@@ -23,9 +23,9 @@ from figproof.config import (
     config_schema,
     load_config,
 )
-from figproof.context import RunContext
-from figproof.findings import Hit
-from figproof.model import ScriptError, ScriptRun
+from figproof.model.context import RunContext
+from figproof.model.findings import Hit
+from figproof.model.records import ScriptError, ScriptRun
 from figproof.rules.base import Knob, Knobs, Rule, rule
 
 jsonschema = pytest.importorskip("jsonschema", reason="jsonschema (test extra) validates the shipped config schema")

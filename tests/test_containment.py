@@ -17,9 +17,9 @@ from pathlib import Path
 import pytest
 
 from figproof import cli
-from figproof.execute import FreshInterpreter, Options, Task, execute_all
-from figproof.model import ScriptRun
-from figproof.pool import WarmPool
+from figproof.run.execute import FreshInterpreter, Options, Task, execute_all
+from figproof.model.records import ScriptRun
+from figproof.run.pool import WarmPool
 
 pytestmark = pytest.mark.skipif(not Path("/proc/self/stat").exists(),
                                 reason="process checks read /proc (Linux); the hostile scripts use POSIX calls")

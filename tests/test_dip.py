@@ -8,8 +8,8 @@ import math
 import numpy as np
 import pytest
 
-from figproof import _dip_table
-from figproof.dip import dip_pvalue, dip_statistic, dip_test, spread_ties
+from figproof.science import _dip_table
+from figproof.science.dip import dip_pvalue, dip_statistic, dip_test, spread_ties
 
 
 def _samples(seed: int) -> list[np.ndarray]:

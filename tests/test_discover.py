@@ -11,7 +11,7 @@ import nbformat
 import pytest
 
 from figproof.config import Config
-from figproof.discover import (
+from figproof.discover.inventory import (
     DiscoveryError,
     choose_working_dir,
     code_draws,

@@ -11,10 +11,10 @@ from pathlib import Path
 
 import pytest
 
-from figproof import execute
-from figproof.execute import FreshInterpreter, Options, Task, execute_all
-from figproof.model import ScriptRun
-from figproof.pool import WarmPool
+from figproof.run import execute
+from figproof.run.execute import FreshInterpreter, Options, Task, execute_all
+from figproof.model.records import ScriptRun
+from figproof.run.pool import WarmPool
 
 posix_only = pytest.mark.skipif(os.name != "posix" or sys.platform == "darwin",
                                 reason="the warm pool forks; it is used on Linux and other POSIX systems but macOS")
@@ -242,7 +242,7 @@ KILLER = """
     # hostile: kill the worker server that forked this process (only when run by the warm pool)
     parent = os.getppid()
     with open(f"/proc/{parent}/cmdline", "rb") as fh:
-        if b"figproof.pool" in fh.read():
+        if b"figproof.run.pool" in fh.read():
             os.kill(parent, signal.SIGKILL)
             time.sleep(0.5)
     import matplotlib.pyplot as plt

@@ -15,9 +15,9 @@ from pathlib import Path
 
 import pytest
 
-from figproof.execute import Options, Task, execute_all
-from figproof.model import ScriptRun
-from figproof.pool import WarmPool
+from figproof.run.execute import Options, Task, execute_all
+from figproof.model.records import ScriptRun
+from figproof.run.pool import WarmPool
 
 SCRIPTS = {
     # saved at another dpi than the figure's, nothing changed afterwards: the savefig draw is reused
@@ -133,7 +133,7 @@ def test_a_figure_saved_as_displayed_is_not_drawn_again_until_it_changes(tmp_pat
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 
-    from figproof.extract import draw_for_extraction
+    from figproof.child.extract import draw_for_extraction
 
     fig = Figure(figsize=(3, 2))
     canvas = FigureCanvasAgg(fig)
@@ -168,6 +168,6 @@ def test_which_savefig_calls_leave_the_figure_drawn_as_displayed(fname: str, kwa
                                                                  expected: bool) -> None:
     from matplotlib.figure import Figure
 
-    from figproof.capture import drew_as_displayed
+    from figproof.child.capture import drew_as_displayed
 
     assert drew_as_displayed(Figure(dpi=100), fname, kwargs) is expected

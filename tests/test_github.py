@@ -12,7 +12,7 @@ import re
 
 import pytest
 
-from figproof.findings import CheckResult, Finding, Summary
+from figproof.model.findings import CheckResult, Finding, Summary
 from figproof.report.github import annotations, escape_data, escape_property
 
 _LINE = re.compile(r"^::(?P<cmd>[a-z]+)(?: (?P<props>[^:]*))?::(?P<data>.*)$", re.DOTALL)

@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import json
 
-from figproof.findings import CheckResult, Finding, Summary
+from figproof.model.findings import CheckResult, Finding, Summary
 from figproof.report import gitlab
 
 GITLAB_SEVERITIES = {"info", "minor", "major", "critical", "blocker"}

@@ -8,7 +8,7 @@ import zipfile
 import numpy as np
 import pytest
 
-from figproof.model import ArrayStore, ScriptError, Source, dump_run, load_run
+from figproof.model.records import ArrayStore, ScriptError, Source, dump_run, load_run
 from tests import builders as b
 
 

@@ -14,10 +14,10 @@ import json
 import sys
 
 from tests.builders import axes, figure, run, src
-from figproof.compare import OutputComparison
-from figproof.context import RunContext
-from figproof.model import FileEvent
-from figproof.provenance import build_manifest, environment_fingerprint, provenance_rows
+from figproof.compare.files import OutputComparison
+from figproof.model.context import RunContext
+from figproof.model.records import FileEvent
+from figproof.report.provenance import build_manifest, environment_fingerprint, provenance_rows
 
 ABC_SHA256 = "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"  # FIPS 180-2, B.1
 

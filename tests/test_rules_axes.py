@@ -20,8 +20,8 @@ from tests.builders import (
     text,
 )
 
-from figproof.findings import Hit
-from figproof.model import Axes, Violin
+from figproof.model.findings import Hit
+from figproof.model.records import Axes, Violin
 from figproof.rules.axes import axis_clips_data, axis_empty_span
 
 # the 24 root lengths of the rule's Bad example: 9 of them exceed 40

@@ -15,8 +15,8 @@ import numpy as np
 import pytest
 
 from tests.builders import axes, bars, figure, line, points, src
-from figproof.findings import Hit
-from figproof.model import ColorMapping, Patch, Text
+from figproof.model.findings import Hit
+from figproof.model.records import ColorMapping, Patch, Text
 from figproof.rules import colour
 from figproof.rules.base import Rule
 
@@ -403,7 +403,7 @@ def test_rules_are_documented() -> None:
 
 def test_colour_modules_do_not_import_matplotlib() -> None:
     # rules are pure: importing them (in a fresh interpreter) must not pull in matplotlib at all
-    code = "import sys, figproof.rules.colour, figproof.colour_science; print('matplotlib' in sys.modules)"
+    code = "import sys, figproof.rules.colour, figproof.science.colour; print('matplotlib' in sys.modules)"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "False"
 

@@ -19,7 +19,7 @@ from tests.builders import (
     table_of,
     violin_of,
 )
-from figproof.model import Axis
+from figproof.model.records import Axis
 from figproof.rules import distribution
 from figproof.rules.distribution import box_hides_modes, dots_binned, errorbars_sem, summary_hides_small_n
 
@@ -417,14 +417,14 @@ def test_importing_rules_does_not_import_pyplot() -> None:
     import subprocess
     import sys
 
-    code = "import sys, figproof.rules.distribution, figproof.dip; print('matplotlib.pyplot' in sys.modules)"
+    code = "import sys, figproof.rules.distribution, figproof.science.dip; print('matplotlib.pyplot' in sys.modules)"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
     assert out.strip() == "False"
 
 
 def test_messages_name_groups_by_their_tick_labels() -> None:
-    from figproof.model import Axis
-    from figproof.rules.observations import group_label, where
+    from figproof.model.records import Axis
+    from figproof.rules._observations import group_label, where
 
     ax = axes()
     ax = type(ax)(index=0, x=Axis(ticks=((1.0, "wild type"), (2.0, "2"))), y=ax.y)

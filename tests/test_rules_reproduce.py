@@ -1,6 +1,6 @@
 """Run rules of the reproducibility family, on hand-built runs and comparisons.
 
-The comparison verdicts fed to figure-drift come from figproof.compare, whose
+The comparison verdicts fed to figure-drift come from figproof.compare.files, whose
 pixel and RMS definitions are checked against Pillow and matplotlib in
 tests/test_compare.py; one test here feeds real compare_output results through
 the rule so the two agree end to end.
@@ -15,10 +15,10 @@ import numpy as np
 from PIL import Image, PngImagePlugin
 
 from tests.builders import axes, errorbars, figure, points, run, src
-from figproof.compare import OutputComparison, compare_output
-from figproof.context import Inventory, RunContext
-from figproof.findings import Hit
-from figproof.model import FileEvent, ScriptRun, Source
+from figproof.compare.files import OutputComparison, compare_output
+from figproof.model.context import Inventory, RunContext
+from figproof.model.findings import Hit
+from figproof.model.records import FileEvent, ScriptRun, Source
 from figproof.rules import reproduce
 from figproof.rules.base import Rule
 
@@ -117,7 +117,7 @@ def test_drift_notebook_cell() -> None:
 
 
 def test_drift_from_real_comparison(tmp_path: Path) -> None:
-    # End to end with figproof.compare: a PNG with one changed block, recorded as made by matplotlib 3.7.1.
+    # End to end with figproof.compare.files: a PNG with one changed block, recorded as made by matplotlib 3.7.1.
     rng = np.random.default_rng(7)
     a = rng.integers(0, 256, (20, 30, 3), dtype=np.uint8)
     b = a.copy()

@@ -9,8 +9,8 @@ import numpy as np
 import pytest
 from tests.builders import Axis, axes_with, bars_px, figure, patch, points_px
 
-from figproof.findings import Hit
-from figproof.model import Axes
+from figproof.model.findings import Hit
+from figproof.model.records import Axes
 from figproof.rules.visibility import marker_radius_px, overlap, points_hidden
 
 BOX = (0.0, 0.0, 1000.0, 1000.0)

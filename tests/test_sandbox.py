@@ -15,9 +15,9 @@ from pathlib import Path
 
 import pytest
 
-from figproof import sandbox
-from figproof.execute import Options, Task, execute_all
-from figproof.sandbox import SandboxPool, copy_repo, restore, scan
+from figproof.run import sandbox
+from figproof.run.execute import Options, Task, execute_all
+from figproof.run.sandbox import SandboxPool, copy_repo, restore, scan
 
 
 def make_repo(root: Path) -> Path:

@@ -14,7 +14,7 @@ from urllib.parse import unquote
 import jsonschema
 import pytest
 
-from figproof.findings import CheckResult, Finding, Summary
+from figproof.model.findings import CheckResult, Finding, Summary
 from figproof.report import sarif
 from figproof.rules import RULES
 from figproof.rules.base import Rule

@@ -7,7 +7,7 @@ import json
 import pytest
 from scipy import stats
 
-from figproof.shard import ShardError, merge_reports, parse_shard, select_shard
+from figproof.discover.shard import ShardError, merge_reports, parse_shard, select_shard
 
 SCRIPTS = [f"figures/panel_{i:03d}.py" for i in range(1000)]
 

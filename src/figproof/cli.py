@@ -159,17 +159,17 @@ def cmd_explain(args: argparse.Namespace) -> int:
 
 
 def _one_line_errors() -> tuple[type[Exception], ...]:
-    from figproof.accept import AcceptedFileError
+    from figproof.policy.accept import AcceptedFileError
     from figproof.config import ConfigError
-    from figproof.discover import DiscoveryError
-    from figproof.gitrepo import GitError
-    from figproof.shard import ShardError
+    from figproof.discover.inventory import DiscoveryError
+    from figproof.discover.gitrepo import GitError
+    from figproof.discover.shard import ShardError
 
     return (ConfigError, DiscoveryError, AcceptedFileError, GitError, ShardError)
 
 
 def _progress(args: argparse.Namespace):  # noqa: ANN202 - returns a callback or None
-    from figproof.outputs import progress_printer
+    from figproof.report.write import progress_printer
 
     return progress_printer(quiet=args.quiet, verbose=getattr(args, "verbose", False))
 
@@ -196,7 +196,7 @@ def do_check(path: Path, args: argparse.Namespace, **option_overrides: object): 
 def run_check(path: Path, args: argparse.Namespace, *, shown_root: str | None = None,
               changed: tuple[str, ...] | None = None) -> int:
     """Check ``path`` and write the reports asked for in ``args``."""
-    from figproof.outputs import final_line, write_reports
+    from figproof.report.write import final_line, write_reports
 
     checked = do_check(path, args, changed=changed)
     try:
@@ -261,7 +261,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
 
 
 def cmd_accept(args: argparse.Namespace) -> int:
-    from figproof.accept import write_accepted
+    from figproof.policy.accept import write_accepted
 
     args.quiet, args.verbose = False, False
     checked = do_check(Path(args.path), args)
@@ -274,8 +274,8 @@ def cmd_accept(args: argparse.Namespace) -> int:
 
 
 def cmd_merge(args: argparse.Namespace) -> int:
-    from figproof.outputs import write_merged
-    from figproof.shard import ShardError
+    from figproof.report.write import write_merged
+    from figproof.discover.shard import ShardError
 
     texts = []
     for name in args.reports:

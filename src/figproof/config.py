@@ -30,8 +30,8 @@ from importlib import resources
 from pathlib import Path
 from typing import Any, NamedTuple
 
-from figproof import gitrepo
-from figproof.findings import SEVERITIES
+from figproof.discover import gitrepo
+from figproof.model.findings import SEVERITIES
 from figproof.rules import by_id
 from figproof.rules.base import Rule
 

@@ -14,7 +14,7 @@ from dataclasses import dataclass, replace
 from pathlib import Path, PurePosixPath
 
 from figproof import __version__, rules
-from figproof.accept import (
+from figproof.policy.accept import (
     Allow,
     allow_key,
     apply_acceptance,
@@ -22,17 +22,17 @@ from figproof.accept import (
     notebook_allow_comments,
     parse_allow_comments,
 )
-from figproof.cache import HIT_NOTE, CachingRunner, prune, recorded_dependencies
-from figproof.comparisons import committed_vs_regenerated, first_vs_second, notebook_outputs
+from figproof.run.cache import HIT_NOTE, CachingRunner, prune, recorded_dependencies
+from figproof.compare.runs import committed_vs_regenerated, first_vs_second, notebook_outputs
 from figproof.config import Config, load_config
-from figproof.context import Inventory, RunContext
-from figproof.discover import choose_working_dir, discover
-from figproof.execute import Options, Runner, Task, default_runner, execute_all
-from figproof.findings import CheckResult, Finding
-from figproof.gitrepo import changed_since
-from figproof.model import ScriptRun
-from figproof.policy import summarise
-from figproof.shard import select_shard
+from figproof.model.context import Inventory, RunContext
+from figproof.discover.inventory import choose_working_dir, discover
+from figproof.run.execute import Options, Runner, Task, default_runner, execute_all
+from figproof.model.findings import CheckResult, Finding
+from figproof.discover.gitrepo import changed_since
+from figproof.model.records import ScriptRun
+from figproof.policy.verdict import summarise
+from figproof.discover.shard import select_shard
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -121,7 +121,7 @@ def check(path: Path, options: CheckOptions | None = None, *, runner: Runner | N
 
     Raises
     ------
-    figproof.config.ConfigError, figproof.discover.DiscoveryError, figproof.accept.AcceptedFileError
+    figproof.config.ConfigError, figproof.discover.inventory.DiscoveryError, figproof.policy.accept.AcceptedFileError
         For configuration, discovery and accepted-file problems (the CLI turns them into exit code 2).
     """
     options = options or CheckOptions()

@@ -13,8 +13,8 @@ import tempfile
 import time
 from pathlib import Path
 
-from figproof.cache import HIT_NOTE, CachingRunner
-from figproof.execute import FreshInterpreter, Options, Task
+from figproof.run.cache import HIT_NOTE, CachingRunner
+from figproof.run.execute import FreshInterpreter, Options, Task
 from figproof.pipeline import CheckOptions, check
 
 SCRIPTS = 40

@@ -36,12 +36,12 @@ from pathlib import Path
 
 from figproof import rules
 from figproof.config import load_config
-from figproof.context import RunContext
-from figproof.discover import discover
-from figproof.execute import FreshInterpreter, Options, Task, execute_all
+from figproof.model.context import RunContext
+from figproof.discover.inventory import discover
+from figproof.run.execute import FreshInterpreter, Options, Task, execute_all
 from figproof.pipeline import build_context
-from figproof.pool import WarmPool
-from figproof.sandbox import SandboxPool
+from figproof.run.pool import WarmPool
+from figproof.run.sandbox import SandboxPool
 
 HEADER = """\
 import time

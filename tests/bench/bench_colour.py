@@ -19,7 +19,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # tests/ for build
 
 from builders import axes, figure, line  # noqa: E402
 
-from figproof.model import ColorMapping, Text  # noqa: E402
+from figproof.model.records import ColorMapping, Text  # noqa: E402
 from figproof.rules import colour  # noqa: E402
 
 

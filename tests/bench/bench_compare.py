@@ -18,7 +18,7 @@ from pathlib import Path
 import numpy as np
 from PIL import Image
 
-from figproof.compare import compare_output, write_diff_image
+from figproof.compare.files import compare_output, write_diff_image
 
 
 def _pair(folder: Path, width: int, height: int) -> tuple[Path, Path]:

@@ -1,4 +1,4 @@
-"""Time Hartigan's dip test (figproof.dip.dip_test: tie spreading, sort, dip, table p-value).
+"""Time Hartigan's dip test (figproof.science.dip.dip_test: tie spreading, sort, dip, table p-value).
 
 Target: n = 10^5 under 0.5 s.  Prints the best of several runs for each n and sample shape.
 Run from the repo root:  .venv/bin/python tests/bench/bench_dip.py
@@ -10,7 +10,7 @@ import time
 
 import numpy as np
 
-from figproof.dip import dip_test
+from figproof.science.dip import dip_test
 
 
 def best_of(values: np.ndarray, repeats: int) -> float:

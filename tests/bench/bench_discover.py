@@ -14,7 +14,7 @@ import time
 from pathlib import Path
 
 from figproof.config import Config
-from figproof.discover import choose_working_dir, discover
+from figproof.discover.inventory import choose_working_dir, discover
 
 
 def build(root: Path, scripts: int, data: int) -> None:

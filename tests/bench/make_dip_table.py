@@ -1,11 +1,11 @@
-"""Generate src/figproof/_dip_table.py: Monte Carlo quantiles of the dip under the uniform null.
+"""Generate src/figproof/science/_dip_table.py: Monte Carlo quantiles of the dip under the uniform null.
 
 Hartigan & Hartigan (1985) show the uniform distribution is the least favourable
 unimodal null for the dip, so critical values come from uniform samples.  For
 each sample size n in SIZES we draw ``draws(n)`` samples of n independent
 U(0, 1) values with numpy's PCG64 generator seeded by ``[SEED, n]``, compute
-each dip with figproof.dip.dip_statistic, and store the quantiles of
-sqrt(n)*dip at PROBS (numpy's default linear quantile rule).  figproof.dip
+each dip with figproof.science.dip.dip_statistic, and store the quantiles of
+sqrt(n)*dip at PROBS (numpy's default linear quantile rule).  figproof.science.dip
 interpolates between rows in 1/sqrt(n) and between quantiles linearly.
 
 Run from the repo root:  .venv/bin/python tests/bench/make_dip_table.py [--jobs 2]
@@ -21,7 +21,7 @@ from pathlib import Path
 
 import numpy as np
 
-from figproof.dip import dip_statistic
+from figproof.science.dip import dip_statistic
 
 SEED = 19850301  # Hartigan & Hartigan, Annals of Statistics 13(1), March 1985
 SIZES = (4, 5, 6, 7, 8, 9, 10, 12, 15, 20, 25, 30, 40, 50, 70, 100, 150, 200, 300, 500, 700, 1000,
@@ -55,7 +55,7 @@ def render(rows: dict[int, list[float]]) -> str:
         "",
         "Made by tests/bench/make_dip_table.py: for each n in NS, DRAWS[i] samples of n",
         "U(0, 1) values from numpy's PCG64 seeded with [SEED, n]; the dip of each by",
-        "figproof.dip.dip_statistic; QUANTILES[i][j] is the PROBS[j] quantile of sqrt(n)*dip.",
+        "figproof.science.dip.dip_statistic; QUANTILES[i][j] is the PROBS[j] quantile of sqrt(n)*dip.",
         '"""',
         "",
         f"SEED = {SEED}",
@@ -74,7 +74,7 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--jobs", type=int, default=1)
     parser.add_argument("--out", type=Path,
-                        default=Path(__file__).resolve().parents[2] / "src" / "figproof" / "_dip_table.py")
+                        default=Path(__file__).resolve().parents[2] / "src" / "figproof" / "science" / "_dip_table.py")
     args = parser.parse_args()
     rows: dict[int, list[float]] = {}
     with ProcessPoolExecutor(max_workers=args.jobs) as pool:

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 from collections.abc import Iterable
 
-from figproof.findings import SEVERITIES, CheckResult, Finding
+from figproof.model.findings import SEVERITIES, CheckResult, Finding
 
 # Workflow commands know error, warning and notice; figproof's "note" is a notice.
 COMMANDS = {"error": "error", "warning": "warning", "note": "notice"}

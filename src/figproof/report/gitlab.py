@@ -14,7 +14,7 @@ import json
 from collections import Counter
 from typing import Any
 
-from figproof.findings import CheckResult, Finding
+from figproof.model.findings import CheckResult, Finding
 from figproof.rules import fingerprint as rule_fingerprint
 
 # GitLab's severities are info, minor, major, critical, blocker.  figproof has three levels;

@@ -1,7 +1,7 @@
 """Pictures for colour findings: a rendered figure beside what colour-blind and grayscale readers see.
 
 One PNG per figure: the original, then its protan, deutan and tritan simulations
-(Machado et al. 2009, through :mod:`figproof.colour_science`), and a grayscale
+(Machado et al. 2009, through :mod:`figproof.science.colour`), and a grayscale
 version when a grayscale finding exists, each under a label, two panels a row.
 Composed with Pillow only (no pyplot), deterministically: the same render gives
 the same bytes.
@@ -15,7 +15,7 @@ from pathlib import Path
 import numpy as np
 from PIL import Image, ImageDraw, ImageFont
 
-from figproof import colour_science as cs
+from figproof.science import colour as cs
 
 #: Rules whose findings call for the simulated views.
 COLOUR_RULES = ("colormap-not-uniform", "colours-confusable-cvd", "colours-confusable-gray", "low-contrast")

@@ -5,8 +5,8 @@ from __future__ import annotations
 import json
 from typing import Any
 
-from figproof.findings import CheckResult, Finding
-from figproof.model import ScriptRun
+from figproof.model.findings import CheckResult, Finding
+from figproof.model.records import ScriptRun
 
 SCHEMA = 1
 

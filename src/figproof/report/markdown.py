@@ -5,8 +5,8 @@ from __future__ import annotations
 from collections.abc import Mapping
 from typing import Any
 
-from figproof.findings import CheckResult, Finding
-from figproof.model import ScriptRun
+from figproof.model.findings import CheckResult, Finding
+from figproof.model.records import ScriptRun
 
 STEP_SUMMARY_LIMIT = 1024 * 1024  # GitHub rejects job summaries over 1 MiB
 _ISOLATION = {"repo-copy": "ran on a copy of the repo", "memory-cap": "memory cap", "network-off": "network off"}
@@ -73,7 +73,7 @@ def _scripts_table(runs: tuple[ScriptRun, ...], timings: bool) -> list[str]:
 
 
 def _provenance(manifest: Mapping[str, Any]) -> list[str]:
-    from figproof.provenance import provenance_rows
+    from figproof.report.provenance import provenance_rows
 
     env = manifest.get("environment", {})
     parts = [f"commit `{str(manifest['git_commit'])[:12]}`" if manifest.get("git_commit") else "not a git commit"]

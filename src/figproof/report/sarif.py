@@ -15,7 +15,7 @@ from collections.abc import Sequence
 from typing import Any
 from urllib.parse import quote
 
-from figproof.findings import CheckResult, Finding
+from figproof.model.findings import CheckResult, Finding
 from figproof.rules.base import Rule
 
 SCHEMA_URI = "https://docs.oasis-open.org/sarif/sarif/v2.1.0/errata01/os/schemas/sarif-schema-2.1.0.json"

@@ -9,9 +9,9 @@ from __future__ import annotations
 import hashlib
 from collections.abc import Iterable, Mapping
 
-from figproof.context import RunContext
-from figproof.findings import Finding, Hit
-from figproof.model import ScriptRun, Source
+from figproof.model.context import RunContext
+from figproof.model.findings import Finding, Hit
+from figproof.model.records import ScriptRun, Source
 from figproof.rules import axes, bars, colour, distribution, reproduce, run, visibility
 from figproof.rules.base import Rule
 

@@ -13,8 +13,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from figproof.findings import Hit
-from figproof.model import Axes, Axis, FigureModel, Line, PointSet, Source
+from figproof.model.findings import Hit
+from figproof.model.records import Axes, Axis, FigureModel, Line, PointSet, Source
 from figproof.rules.base import Knob, Knobs, counted, rule
 
 # scales whose axes-fraction coordinate we can compute without extra parameters

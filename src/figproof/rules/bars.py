@@ -7,8 +7,8 @@ from collections.abc import Iterator
 
 import numpy as np
 
-from figproof.findings import Hit
-from figproof.model import Axes, BarSet, FigureModel, LoadedTable
+from figproof.model.findings import Hit
+from figproof.model.records import Axes, BarSet, FigureModel, LoadedTable
 from figproof.rules.base import Knob, Knobs, rule
 
 # value-axis labels that say the bars are counts or shares (common practice: bars suit counts and proportions)

@@ -11,7 +11,7 @@ import inspect
 from collections.abc import Callable, Iterator, Mapping
 from dataclasses import dataclass, field
 
-from figproof.findings import CONFIDENCES, SEVERITIES, Hit
+from figproof.model.findings import CONFIDENCES, SEVERITIES, Hit
 
 Knobs = Mapping[str, float]
 

@@ -1,8 +1,8 @@
 """Colour rules: colour maps, colour pairs under colour-vision deficiency and in grayscale, contrast.
 
-The colours each rule measures are collected in :mod:`figproof.rules.colour_series` (its module
+The colours each rule measures are collected in :mod:`figproof.rules._series` (its module
 docstring says which marks count as series); colour maps are judged in
-:mod:`figproof.rules.colormaps`; every formula lives in :mod:`figproof.colour_science`.
+:mod:`figproof.rules._colormaps`; every formula lives in :mod:`figproof.science.colour`.
 """
 
 from __future__ import annotations
@@ -12,12 +12,12 @@ from collections.abc import Iterator
 
 import numpy as np
 
-from figproof import colour_science as cs
-from figproof.findings import Hit
-from figproof.model import Axes, ColorMapping, FigureModel, Source, Text
+from figproof.science import colour as cs
+from figproof.model.findings import Hit
+from figproof.model.records import Axes, ColorMapping, FigureModel, Source, Text
 from figproof.rules.base import Knob, Knobs, rule
-from figproof.rules.colormaps import MapProblem, judge_cached, judge_colormap
-from figproof.rules.colour_series import (
+from figproof.rules._colormaps import MapProblem, judge_cached, judge_colormap
+from figproof.rules._series import (
     Series,
     axes_background,
     axes_pairs,

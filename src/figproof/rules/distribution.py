@@ -14,11 +14,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from figproof.dip import dip_test
-from figproof.findings import Hit
-from figproof.model import Axes, Box, ErrorBars, FigureModel, Source, Violin
+from figproof.science.dip import dip_test
+from figproof.model.findings import Hit
+from figproof.model.records import Axes, Box, ErrorBars, FigureModel, Source, Violin
 from figproof.rules.base import Knob, Knobs, pct, rule
-from figproof.rules.observations import (
+from figproof.rules._observations import (
     Group,
     drawn_near,
     finite,

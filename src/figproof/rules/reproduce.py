@@ -1,9 +1,9 @@
 """Run rules about reproducibility: do the committed figures still come out of the scripts, and from which data.
 
-These rules read what the pipeline put in :class:`~figproof.context.RunContext`
+These rules read what the pipeline put in :class:`~figproof.model.context.RunContext`
 (file comparisons, the second runs of ``--twice``, the repo inventory) and the
 file events the child recorded.  They compare nothing themselves and touch no
-file: :mod:`figproof.compare` did the I/O before the rules run.
+file: :mod:`figproof.compare.files` did the I/O before the rules run.
 """
 
 from __future__ import annotations
@@ -12,10 +12,10 @@ from collections.abc import Iterator, Sequence
 
 import numpy as np
 
-from figproof.compare import OutputComparison
-from figproof.context import RunContext, is_figure_output, is_repo_path
-from figproof.findings import Hit
-from figproof.model import FigureModel, FileEvent, ScriptRun, Source
+from figproof.compare.files import OutputComparison
+from figproof.model.context import RunContext, is_figure_output, is_repo_path
+from figproof.model.findings import Hit
+from figproof.model.records import FigureModel, FileEvent, ScriptRun, Source
 from figproof.rules.base import Knob, Knobs, pct, rule
 
 _GOOD_PLOT = """

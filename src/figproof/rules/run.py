@@ -4,9 +4,9 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 
-from figproof.context import RunContext
-from figproof.findings import Hit
-from figproof.model import ScriptRun
+from figproof.model.context import RunContext
+from figproof.model.findings import Hit
+from figproof.model.records import ScriptRun
 from figproof.rules.base import Knobs, rule
 
 _KIND_TEXT = {

@@ -14,9 +14,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from figproof.colour_science import blend_over, delta_e
-from figproof.findings import Hit
-from figproof.model import Axes, FigureModel, PointSet
+from figproof.science.colour import blend_over, delta_e
+from figproof.model.findings import Hit
+from figproof.model.records import Axes, FigureModel, PointSet
 from figproof.rules.base import Knob, Knobs, counted, rule
 
 HIDDEN_WARNING = 0.25

@@ -1,6 +1,6 @@
-"""Entry point of the child process that runs one figure script: ``python -m figproof.child SPEC``.
+"""Entry point of the child process that runs one figure script: ``python -m figproof.child.main SPEC``.
 
-The parent (:mod:`figproof.execute`) writes a JSON spec, starts this module in
+The parent (:mod:`figproof.run.execute`) writes a JSON spec, starts this module in
 a new session with stdout/stderr sent to files and stdin closed, and reads
 back ``run.json`` (plus .npy arrays) from the spec's output folder.  Events
 (files opened, figures saved) are appended to ``events.jsonl`` as they happen,
@@ -114,8 +114,8 @@ def _user_frame(tb: Any, rec: Any) -> Any:
 
 def run_user_code(spec: Spec, rec: Any) -> Any:
     """Execute the script or notebook; return a ScriptError or None."""
-    from figproof.capture import NetworkRefused
-    from figproof.model import ScriptError
+    from figproof.child.capture import NetworkRefused
+    from figproof.model.records import ScriptError
 
     path = Path(spec.sandbox) / spec.script
     try:
@@ -188,7 +188,7 @@ def main(argv: list[str] | None = None) -> int:
     sys.stdout = _CappedStream(sys.stdout, CAPTURE_LIMIT)
     sys.stderr = _CappedStream(sys.stderr, CAPTURE_LIMIT)
 
-    from figproof import capture
+    from figproof.child import capture
 
     rec = capture.Recorder(sandbox=Path(spec.sandbox).resolve(), script=spec.script,
                            events_path=out / "events.jsonl", protect=tuple(Path(p) for p in spec.protect))
@@ -206,8 +206,8 @@ def main(argv: list[str] | None = None) -> int:
 
 
 def _finish(spec: Spec, rec: Any, error: Any, seconds: float, isolation: tuple[str, ...]) -> None:
-    from figproof.extract import extract_figure
-    from figproof.model import ScriptRun, dump_run
+    from figproof.child.extract import extract_figure
+    from figproof.model.records import ScriptRun, dump_run
 
     out = Path(spec.out)
     figures = []

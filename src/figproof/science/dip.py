@@ -16,7 +16,7 @@ The statistic is reported on the probability scale, so it lies in
 [1/(2n), 1/4].  :func:`dip_pvalue` turns it into a p-value against the
 uniform distribution (the least favourable unimodal null, as in Hartigan &
 Hartigan) by interpolating a table of Monte Carlo quantiles shipped in
-:mod:`figproof._dip_table` and made by ``tests/bench/make_dip_table.py``.
+:mod:`figproof.science._dip_table` and made by ``tests/bench/make_dip_table.py``.
 
 Discrete data have ties, and ties make the empirical distribution jump in a
 way no continuous unimodal law can follow, so the test would reject unimodal
@@ -240,7 +240,7 @@ def spread_ties(values: object) -> np.ndarray:
 
 def _quantiles_at(n: int) -> np.ndarray:
     """sqrt(n)·dip quantiles at PROBS for sample size n (interpolated in 1/sqrt(n) between table rows)."""
-    from figproof import _dip_table  # imported late so the table's generator can use this module
+    from figproof.science import _dip_table  # imported late so the table's generator can use this module
 
     ns = np.asarray(_dip_table.NS, float)
     table = np.asarray(_dip_table.QUANTILES, float)  # rows: n in NS; columns: PROBS; values sqrt(n)*dip
@@ -265,7 +265,7 @@ def dip_pvalue(dip: float, n: int) -> float:
     """
     if n < 4 or not math.isfinite(dip):
         return 1.0
-    from figproof import _dip_table
+    from figproof.science import _dip_table
 
     q = _quantiles_at(n)
     cdf = float(np.interp(math.sqrt(n) * dip, q, np.asarray(_dip_table.PROBS, float)))

@@ -1,7 +1,7 @@
 """Warm worker pool: one server imports numpy, pandas, matplotlib and the capture code once, then forks a child
 per script.
 
-Parent side: :class:`WarmPool` (a :class:`figproof.execute.Runner`).  Server side: ``python -m figproof.pool``.
+Parent side: :class:`WarmPool` (a :class:`figproof.run.execute.Runner`).  Server side: ``python -m figproof.run.pool``.
 They talk in JSON lines over the server's stdin/stdout pipes (never pickle: the children run untrusted code).
 
     parent → server   {"op": "run", "id": 3, "spec": ..., "cwd": ..., "env": {...}, "stdout": ..., "stderr": ...}
@@ -13,9 +13,9 @@ The server keeps one child forked ahead of time (a spare): it has already starte
 server's descriptors and reseeded numpy, and waits on a pipe for its request, so a script's run does not wait
 for the fork; the next spare is forked while that script runs.  A spare that dies unused is replaced.
 
-Each forked child gets the containment of a fresh interpreter (see :mod:`figproof.execute`): a new session,
+Each forked child gets the containment of a fresh interpreter (see :mod:`figproof.run.execute`): a new session,
 stdin on /dev/null, stdout/stderr to files, the per-script environment, the sandbox copy as working folder;
-:func:`figproof.child.main` then sets the memory cap and the network block and runs the script.  The server
+:func:`figproof.child.main.main` then sets the memory cap and the network block and runs the script.  The server
 never runs user code itself, so nothing a script changes (rcParams, pyplot figures, imported modules, cwd,
 environment, sys.path, sys.argv) reaches the next script: each child starts from the server's pristine state.
 
@@ -39,13 +39,13 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import IO, Any
 
-from figproof.execute import GRACE_SECONDS, FreshInterpreter, Launch, Options, Task, child_env, run_contained
-from figproof.model import ScriptRun
+from figproof.run.execute import GRACE_SECONDS, FreshInterpreter, Launch, Options, Task, child_env, run_contained
+from figproof.model.records import ScriptRun
 
 START_TIMEOUT = 60.0  # seconds for the server to import its libraries
 FORK_TIMEOUT = 30.0  # seconds for the server to answer a run request with the child's pid
 PRELOAD = ("numpy", "pandas", "matplotlib", "matplotlib.pyplot", "matplotlib.backends.backend_agg", "PIL.Image",
-           "PIL.PngImagePlugin", "figproof.capture", "figproof.extract", "figproof.model", "figproof.child",
+           "PIL.PngImagePlugin", "figproof.child.capture", "figproof.child.extract", "figproof.model.records", "figproof.child.main",
            "nbformat", "resource", "runpy", "pkgutil")
 
 
@@ -71,7 +71,7 @@ class WarmPool:
     """Run each script in a child forked from a server that has already imported the plotting stack.
 
     Start it with :meth:`start` (False when fork is unavailable or the server does not come up: use
-    :class:`figproof.execute.FreshInterpreter` then) and stop it with :meth:`close`; also a context manager.
+    :class:`figproof.run.execute.FreshInterpreter` then) and stop it with :meth:`close`; also a context manager.
     If the server dies during a check, the scripts it was running run again in fresh interpreters and the
     next script starts a new server.
     """
@@ -121,7 +121,7 @@ class WarmPool:
         self._ready = threading.Event()
         try:
             with open(self._tmp / "server-stderr.txt", "wb") as err:
-                self._proc = subprocess.Popen([self.python, "-m", "figproof.pool"], cwd=str(self._tmp),
+                self._proc = subprocess.Popen([self.python, "-m", "figproof.run.pool"], cwd=str(self._tmp),
                                               stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=err,
                                               env=child_env(mplconfig), start_new_session=True)
         except OSError:
@@ -560,7 +560,7 @@ def _run_child(req: dict[str, Any], rcfile: str) -> None:
     # `python -m` puts the working folder first on sys.path; mimic the fresh interpreter
     sys.path[0] = req["cwd"]
     _fresh_state(rcfile)
-    from figproof import child
+    from figproof.child import main as child
 
     child.main([req["spec"]])
 

@@ -1,6 +1,6 @@
 """Hooks installed inside the child process before the user's code runs.
 
-This is the only module (with :mod:`figproof.extract` and :mod:`figproof.child`)
+This is the only module (with :mod:`figproof.child.extract` and :mod:`figproof.child.main`)
 that imports matplotlib.pyplot.  It records, while the script runs:
 
 - every figure created (also ones the script closes or never saves);
@@ -12,7 +12,7 @@ that imports matplotlib.pyplot.  It records, while the script runs:
   matplotlib's box/violin statistics helpers, and the numeric columns of
   tables the script loads.
 
-Nothing here decides anything; :mod:`figproof.extract` turns the record into
+Nothing here decides anything; :mod:`figproof.child.extract` turns the record into
 the model after the script ends.
 """
 
@@ -37,7 +37,7 @@ from typing import Any
 import numpy as np
 
 from figproof.hashing import file_sha256
-from figproof.model import FileEvent, Source
+from figproof.model.records import FileEvent, Source
 
 MAX_RECORDED_VALUES = 200_000  # per recorded array; keeps the child→parent message small
 CELL_RE = re.compile(r"^(?P<path>.*)#cell=(?P<cell>\d+)$")
@@ -75,7 +75,7 @@ class Recorder:
     _busy: bool = False
 
     def __post_init__(self) -> None:
-        here = str(Path(__file__).resolve().parent)
+        here = str(Path(__file__).resolve().parents[1])
         paths = {sysconfig.get_paths().get(k, "") for k in ("purelib", "platlib", "stdlib")}
         self._skip_dirs = tuple(p for p in (here, *paths) if p)
 

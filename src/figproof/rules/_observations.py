@@ -13,7 +13,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from figproof.model import Axes, FigureModel, PointSet
+from figproof.model.records import Axes, FigureModel, PointSet
 
 # Mean/median equality between a drawn centre and a recorded group: the same numbers computed by
 # different code paths (pandas, numpy, seaborn) agree to a few ulps, so this only absorbs rounding.

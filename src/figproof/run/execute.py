@@ -4,14 +4,14 @@ Containment (best effort, not a security boundary):
 
 - each script runs on a temporary copy of the repo, so the user's working
   tree is never written; a copy serves the next script only after whatever
-  the script changed in it has been put back (see :mod:`figproof.sandbox`);
+  the script changed in it has been put back (see :mod:`figproof.run.sandbox`);
 - the child starts in a new session; on timeout the parent kills the whole
   process group (SIGTERM, a short grace, SIGKILL, reap), and after a normal
   exit it kills what the script left behind in that group;
 - stdout/stderr go to files, never pipes, so a grandchild holding them open
   cannot hang figproof; the child caps what it writes;
 - stdin is closed; the memory cap and the network block are set inside the
-  child (see :mod:`figproof.child`).
+  child (see :mod:`figproof.child.main`).
 
 A :class:`Runner` runs one task.  :class:`FreshInterpreter` starts a new
 Python for every script; a warm pool of pre-imported workers can replace it
@@ -35,8 +35,8 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Protocol
 
-from figproof.model import FileEvent, ScriptError, ScriptRun, load_run
-from figproof.sandbox import SandboxPool
+from figproof.model.records import FileEvent, ScriptError, ScriptRun, load_run
+from figproof.run.sandbox import SandboxPool
 
 GRACE_SECONDS = 1.0
 TAIL_BYTES = 4000
@@ -78,7 +78,7 @@ def child_env(mplconfig: Path) -> dict[str, str]:
     env = dict(os.environ)
     for key in ("PYTHONSTARTUP", "PYTHONINSPECT", "MPLBACKEND", "DISPLAY", "WAYLAND_DISPLAY"):
         env.pop(key, None)
-    src = str(Path(__file__).resolve().parent.parent)
+    src = str(Path(__file__).resolve().parents[2])
     env["PYTHONPATH"] = src + (os.pathsep + env["PYTHONPATH"] if env.get("PYTHONPATH") else "")
     env.update({
         "MPLBACKEND": "Agg",
@@ -210,7 +210,7 @@ class FreshInterpreter:
     def _launch(self, job: Launch, timeout: float) -> tuple[int | None, bool]:
         timed_out = False
         with open(job.stdout, "wb") as so, open(job.stderr, "wb") as se:
-            proc = subprocess.Popen([self.python, "-m", "figproof.child", str(job.spec)], cwd=str(job.cwd),
+            proc = subprocess.Popen([self.python, "-m", "figproof.child.main", str(job.spec)], cwd=str(job.cwd),
                                     stdin=subprocess.DEVNULL, stdout=so, stderr=se, env=job.env,
                                     start_new_session=True)
             try:
@@ -293,7 +293,7 @@ def default_runner() -> Runner:
     """
     if os.environ.get("FIGPROOF_RUNNER", "").strip().lower() in ("fresh", "fresh-interpreter"):
         return FreshInterpreter()
-    from figproof.pool import WarmPool
+    from figproof.run.pool import WarmPool
 
     pool = WarmPool()
     return pool if pool.start() else FreshInterpreter()

@@ -14,8 +14,8 @@ from importlib import metadata
 from typing import Any
 
 from figproof import __version__
-from figproof.context import RunContext, is_figure_output, is_repo_path
-from figproof.model import FileEvent, ScriptRun, Source
+from figproof.model.context import RunContext, is_figure_output, is_repo_path
+from figproof.model.records import FileEvent, ScriptRun, Source
 
 MANIFEST_SCHEMA = 1
 _PACKAGES = (("matplotlib", "matplotlib"), ("numpy", "numpy"), ("pandas", "pandas"), ("pillow", "Pillow"))

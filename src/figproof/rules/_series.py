@@ -29,8 +29,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from figproof import colour_science as cs
-from figproof.model import Axes, ColorMapping, FigureModel, Source
+from figproof.science import colour as cs
+from figproof.model.records import Axes, ColorMapping, FigureModel, Source
 from figproof.rules.base import Knobs
 
 # --------------------------------------------------------------------------

@@ -13,7 +13,7 @@ import re
 from collections.abc import Sequence
 from typing import Any
 
-from figproof.findings import SEVERITIES
+from figproof.model.findings import SEVERITIES
 
 REPORT_SCHEMA = 1
 _SPEC = re.compile(r"^\s*(\d+)\s*/\s*(\d+)\s*$")

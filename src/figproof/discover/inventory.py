@@ -28,9 +28,9 @@ from functools import lru_cache
 from pathlib import Path
 from typing import Any
 
-from figproof import gitrepo
+from figproof.discover import gitrepo
 from figproof.config import Config
-from figproof.context import Inventory
+from figproof.model.context import Inventory
 
 SCRIPT_SUFFIXES = (".py", ".ipynb")
 DATA_SUFFIXES = frozenset(

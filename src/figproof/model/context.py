@@ -7,8 +7,8 @@ from dataclasses import dataclass, field
 from pathlib import PurePosixPath
 from types import MappingProxyType
 
-from figproof.compare import OutputComparison, kind_of
-from figproof.model import FileEvent, ScriptRun
+from figproof.compare.files import OutputComparison, kind_of
+from figproof.model.records import FileEvent, ScriptRun
 
 
 def _empty_mapping() -> Mapping:

@@ -34,7 +34,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from figproof.findings import Finding
+from figproof.model.findings import Finding
 
 DEFAULT_PATH = ".figproof-accepted.json"
 FILE_SCHEMA = 1

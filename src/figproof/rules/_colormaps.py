@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from figproof import colour_science as cs
+from figproof.science import colour as cs
 
 
 @dataclass(frozen=True, slots=True)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from figproof.model import ScriptRun, Serialisable, Source, model
+from figproof.model.records import ScriptRun, Serialisable, Source, model
 
 SEVERITIES = ("error", "warning", "note")
 CONFIDENCES = ("certain", "likely", "possible")

@@ -7,8 +7,8 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
-from figproof.findings import SEVERITIES, Finding, Summary
-from figproof.model import ScriptRun
+from figproof.model.findings import SEVERITIES, Finding, Summary
+from figproof.model.records import ScriptRun
 
 _RANK = {s: i for i, s in enumerate(SEVERITIES)}  # error 0, warning 1, note 2
 

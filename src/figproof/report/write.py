@@ -19,8 +19,8 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any, TextIO
 
-from figproof.findings import CheckResult, Finding, Summary
-from figproof.model import ScriptRun
+from figproof.model.findings import CheckResult, Finding, Summary
+from figproof.model.records import ScriptRun
 from figproof.pipeline import Checked
 from figproof.report import github, gitlab, sarif
 from figproof.report import json as json_report
@@ -81,7 +81,7 @@ def check_date(root: Path) -> str | None:
     """The date a check reports: SOURCE_DATE_EPOCH when set, else the date of the checked commit."""
     from datetime import datetime, timezone
 
-    from figproof.gitrepo import head_date
+    from figproof.discover.gitrepo import head_date
 
     epoch = os.environ.get("SOURCE_DATE_EPOCH")
     if epoch and epoch.strip().isdigit():
@@ -91,8 +91,8 @@ def check_date(root: Path) -> str | None:
 
 def provenance_manifest(checked: Checked) -> dict[str, Any]:
     """Which script drew each figure file from which inputs, the commit and the environment."""
-    from figproof.gitrepo import head_commit
-    from figproof.provenance import build_manifest, environment_fingerprint
+    from figproof.discover.gitrepo import head_commit
+    from figproof.report.provenance import build_manifest, environment_fingerprint
 
     root = checked.config.root
     freetype = next((r.freetype for r in checked.result.runs if r.freetype), None)
@@ -106,7 +106,7 @@ def write_images(checked: Checked, folder: Path, relative_to: Path | None) -> di
     Figures with colour findings get a panel of simulated views (protan, deutan, tritan, and
     grayscale for gray findings).
     """
-    from figproof.execute import artifact_folder
+    from figproof.run.execute import artifact_folder
     from figproof.report.images import panel_needed, write_cvd_panel
 
     folder.mkdir(parents=True, exist_ok=True)
@@ -180,7 +180,7 @@ def progress_printer(*, quiet: bool, verbose: bool,
 def write_merged(texts: list[str], args: argparse.Namespace, names: list[str] | None = None) -> tuple[str, bool]:
     """Merge shard reports and write the requested outputs; return the markdown and the verdict."""
     from figproof.rules import by_id
-    from figproof.shard import merge_reports
+    from figproof.discover.shard import merge_reports
 
     merged = merge_reports(texts, names)
     result = result_from_json(merged)

@@ -31,7 +31,7 @@ from typing import Any
 import numpy as np
 from PIL import Image, ImageDraw
 
-from figproof.model import Serialisable, model
+from figproof.model.records import Serialisable, model
 
 MAX_PIXELS = 50_000_000
 MAX_VECTOR_BYTES = 256 * 1024 * 1024

@@ -11,10 +11,10 @@ import json
 from collections.abc import Sequence
 from pathlib import Path
 
-from figproof.compare import OutputComparison, compare_image_bytes, compare_output, notebook_png_outputs
-from figproof.context import is_figure_output
-from figproof.execute import artifact_folder
-from figproof.model import ScriptRun
+from figproof.compare.files import OutputComparison, compare_image_bytes, compare_output, notebook_png_outputs
+from figproof.model.context import is_figure_output
+from figproof.run.execute import artifact_folder
+from figproof.model.records import ScriptRun
 
 
 def saved_outputs(run: ScriptRun) -> list[str]:

@@ -1,13 +1,13 @@
 """Result cache: a script whose code, inputs, settings and environment are unchanged is not run again.
 
-:class:`CachingRunner` wraps any :class:`~figproof.execute.Runner`.  For each
+:class:`CachingRunner` wraps any :class:`~figproof.run.execute.Runner`.  For each
 task it looks for an entry in the cache folder (``cache-dir`` in the config,
 ``.figproof-cache/`` by default; a ``.gitignore`` holding ``*`` is written when
 figproof creates it).  An entry is used only when all of these still match:
 
 - the SHA-256 of the script (or notebook);
 - the SHA-256 of every repo file the cached run read, and of every repo module
-  the script imports (found by reading its code, see :mod:`figproof.imports`);
+  the script imports (found by reading its code, see :mod:`figproof.discover.imports`);
   an input that was missing must still be missing, and so must any repo file
   that would shadow an imported package;
 - the names in each folder the run read from (a script that globs ``data/*.csv``
@@ -60,10 +60,10 @@ from pathlib import Path, PurePosixPath
 from typing import Any
 
 from figproof import __version__
-from figproof.execute import Options, Runner, Task, artifact_folder
+from figproof.run.execute import Options, Runner, Task, artifact_folder
 from figproof.hashing import file_sha256
-from figproof.imports import local_imports, search_folders
-from figproof.model import ScriptRun, dump_run, load_run
+from figproof.discover.imports import local_imports, search_folders
+from figproof.model.records import ScriptRun, dump_run, load_run
 
 KEY_SCHEMA = 1
 RUNS = "runs"  # entries live here, one folder per script: key.json + artifact/
@@ -101,7 +101,7 @@ def _distributions() -> list[str]:
 def _own_code() -> str:
     """Digest of figproof's own source: capture and extraction changes between releases must invalidate."""
     h = hashlib.sha256()
-    package = Path(__file__).resolve().parent
+    package = Path(__file__).resolve().parents[1]
     for path in sorted(package.rglob("*.py")):
         h.update(path.relative_to(package).as_posix().encode())
         h.update(path.read_bytes())
@@ -227,7 +227,7 @@ def _shown(folder: Path, root: Path) -> str:
 
 
 class CachingRunner:
-    """A :class:`~figproof.execute.Runner` that answers from the result cache when nothing changed.
+    """A :class:`~figproof.run.execute.Runner` that answers from the result cache when nothing changed.
 
     Parameters
     ----------

@@ -21,8 +21,8 @@ from matplotlib.lines import Line2D
 from matplotlib.patches import Rectangle
 from matplotlib.text import Text as MplText
 
-from figproof.capture import Recorder
-from figproof.model import (
+from figproof.child.capture import Recorder
+from figproof.model.records import (
     RGBA,
     Axes,
     Axis,

@@ -2,7 +2,7 @@
 
 Made by tests/bench/make_dip_table.py: for each n in NS, DRAWS[i] samples of n
 U(0, 1) values from numpy's PCG64 seeded with [SEED, n]; the dip of each by
-figproof.dip.dip_statistic; QUANTILES[i][j] is the PROBS[j] quantile of sqrt(n)*dip.
+figproof.science.dip.dip_statistic; QUANTILES[i][j] is the PROBS[j] quantile of sqrt(n)*dip.
 """
 
 SEED = 19850301

@@ -1,0 +1,1 @@
+"""Finding what to check: figure scripts and notebooks, data files, committed figures, git facts, shards."""

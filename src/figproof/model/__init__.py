@@ -1,0 +1,1 @@
+"""Plain data that crosses the process boundary and feeds the rules: figures, runs, findings, run context."""

@@ -1,0 +1,1 @@
+"""The one place that decides: allow comments, accepted findings, severities and pass or fail."""
