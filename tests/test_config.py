@@ -78,7 +78,7 @@ def error_of(folder: Path, rules: dict[str, Rule] | None = None) -> str:
 
 
 def test_no_config_uses_defaults_and_the_checked_folder(tmp_path: Path) -> None:
-    cfg = load_config(tmp_path)
+    cfg = load_config(tmp_path, rules=rules_pkg.by_id())
     assert cfg == Config(root=tmp_path.resolve(), jobs=cfg.jobs)
     assert cfg.source is None
     assert (cfg.timeout, cfg.memory_limit, cfg.working_dir, cfg.fail_on) == (120.0, 4096, "auto", "error")
@@ -93,7 +93,7 @@ def test_found_by_walking_up_and_root_is_its_folder(tmp_path: Path) -> None:
     deep.mkdir(parents=True)
     script = write(deep, "growth.py", "import matplotlib\n")
     for start in (deep, script):
-        cfg = load_config(start)
+        cfg = load_config(start, rules=rules_pkg.by_id())
         assert cfg.root == tmp_path.resolve()
         assert cfg.source == tmp_path.resolve() / "pyproject.toml"
         assert cfg.timeout == 30.0
@@ -102,7 +102,7 @@ def test_found_by_walking_up_and_root_is_its_folder(tmp_path: Path) -> None:
 def test_figproof_toml_beats_pyproject_in_the_same_folder(tmp_path: Path) -> None:
     pyproject(tmp_path, "timeout = 30\n")
     write(tmp_path, "figproof.toml", "timeout = 7\n")
-    cfg = load_config(tmp_path)
+    cfg = load_config(tmp_path, rules=rules_pkg.by_id())
     assert cfg.source == tmp_path.resolve() / "figproof.toml"
     assert cfg.timeout == 7.0
 
@@ -111,7 +111,7 @@ def test_pyproject_without_the_table_is_passed_over(tmp_path: Path) -> None:
     pyproject(tmp_path, "jobs = 1\n")
     inner = tmp_path / "sub"
     write(inner, "pyproject.toml", "[project]\nname = 'inner'\n")
-    cfg = load_config(inner)
+    cfg = load_config(inner, rules=rules_pkg.by_id())
     assert cfg.root == tmp_path.resolve() and cfg.jobs == 1
 
 
@@ -124,7 +124,7 @@ def test_walk_stops_at_the_git_top_level(tmp_path: Path) -> None:
     repo = tmp_path / "repo"
     (repo / "figures").mkdir(parents=True)
     subprocess.run(["git", "init", "-q", str(repo)], check=True)
-    cfg = load_config(repo / "figures")
+    cfg = load_config(repo / "figures", rules=rules_pkg.by_id())
     assert cfg.root == repo.resolve()
     assert cfg.source is None and cfg.timeout == 120.0
 
@@ -239,7 +239,7 @@ def test_bad_values(tmp_path: Path, monkeypatch: pytest.MonkeyPatch, body: str, 
 def test_whole_number_floats_count_as_integers_like_json_schema(tmp_path: Path) -> None:
     # JSON Schema 2020-12 (Validation, section 6.1.1 "type"): "integer" matches any number with a zero fractional part.
     pyproject(tmp_path, "jobs = 2.0\nmemory-limit = 512.0\n")
-    cfg = load_config(tmp_path)
+    cfg = load_config(tmp_path, rules=rules_pkg.by_id())
     assert (cfg.jobs, cfg.memory_limit) == (2, 512)
     assert isinstance(cfg.jobs, int) and isinstance(cfg.memory_limit, int)
 
@@ -305,12 +305,12 @@ def test_non_utf8_and_unreadable_files(tmp_path: Path, monkeypatch: pytest.Monke
     assert error_of(tmp_path) == "figproof.toml: invalid TOML: not UTF-8 text (byte 17)"
     (tmp_path / "figproof.toml").unlink()
     (tmp_path / "figproof.toml").mkdir()  # a folder by that name is not a config file: passed over
-    assert load_config(tmp_path).source is None
+    assert load_config(tmp_path, rules=rules_pkg.by_id()).source is None
 
 
 def test_rule_settings_plug_into_the_rule_engine(tmp_path: Path) -> None:
     pyproject(tmp_path, "[tool.figproof.rules.script-fails]\nseverity = 'warning'\n")
-    cfg = load_config(tmp_path)
+    cfg = load_config(tmp_path, rules=rules_pkg.by_id())
     failed = ScriptRun(path="figures/growth.py", status="failed", error=ScriptError(kind="exception", type="KeyError"))
     found = rules_pkg.apply([failed], RunContext(), cfg.rules)
     assert [(f.rule, f.severity) for f in found] == [("script-fails", "warning")]
@@ -334,7 +334,7 @@ def test_shipped_schema_is_valid_draft_2020_12() -> None:
     schema = shipped_schema()
     assert schema["$schema"] == "https://json-schema.org/draft/2020-12/schema"
     jsonschema.Draft202012Validator.check_schema(schema)
-    jsonschema.Draft202012Validator.check_schema(config_schema())
+    jsonschema.Draft202012Validator.check_schema(config_schema(rules_pkg.by_id()))
     assert set(schema["properties"]) == set(KEYS)
 
 
@@ -422,6 +422,6 @@ def test_loader_and_catalogue_schema_agree(tmp_path: Path, body: str, valid: boo
 
 
 def test_catalogue_schema_covers_the_real_rules() -> None:
-    schema = config_schema()
+    schema = config_schema(rules_pkg.by_id())
     assert set(schema["properties"]["rules"]["properties"]) == set(rules_pkg.by_id())
     assert schema_accepts(schema, {"rules": {"script-fails": {"severity": "note"}}})

@@ -14,7 +14,7 @@ import pytest
 from figproof.run import execute
 from figproof.run.execute import FreshInterpreter, Options, Task, execute_all
 from figproof.model.records import ScriptRun
-from figproof.run.pool import WarmPool
+from figproof.run.pool import WarmPool, default_runner
 
 posix_only = pytest.mark.skipif(os.name != "posix" or sys.platform == "darwin",
                                 reason="the warm pool forks; it is used on Linux and other POSIX systems but macOS")
@@ -210,20 +210,20 @@ def test_child_environment(tmp_path: Path, runner: object) -> None:
 @posix_only
 def test_default_runner_is_the_warm_pool_and_can_be_forced_fresh(monkeypatch: pytest.MonkeyPatch) -> None:
     monkeypatch.delenv("FIGPROOF_RUNNER", raising=False)
-    chosen = execute.default_runner()
+    chosen = default_runner()
     try:
         assert isinstance(chosen, WarmPool)
     finally:
         chosen.close()  # type: ignore[attr-defined]
     monkeypatch.setenv("FIGPROOF_RUNNER", "fresh")
-    assert isinstance(execute.default_runner(), FreshInterpreter)
+    assert isinstance(default_runner(), FreshInterpreter)
 
 
 def test_pool_that_cannot_start_falls_back_to_fresh_interpreters(tmp_path: Path,
                                                                   monkeypatch: pytest.MonkeyPatch) -> None:
     monkeypatch.delenv("FIGPROOF_RUNNER", raising=False)
     monkeypatch.setattr(WarmPool, "_spawn", lambda self: False)
-    assert isinstance(execute.default_runner(), FreshInterpreter)
+    assert isinstance(default_runner(), FreshInterpreter)
     repo = write_repo(tmp_path / "repo", {"a.py": "print('hello')\n"})
     pool = WarmPool()
     run = run_all(repo, ["a.py"], tmp_path / "art", pool)[0]
@@ -242,7 +242,7 @@ KILLER = """
     # hostile: kill the worker server that forked this process (only when run by the warm pool)
     parent = os.getppid()
     with open(f"/proc/{parent}/cmdline", "rb") as fh:
-        if b"figproof.run.pool" in fh.read():
+        if b"figproof.child.server" in fh.read():
             os.kill(parent, signal.SIGKILL)
             time.sleep(0.5)
     import matplotlib.pyplot as plt
@@ -272,7 +272,11 @@ def test_execute_all_leaves_no_process_behind(tmp_path: Path, monkeypatch: pytes
     monkeypatch.delenv("FIGPROOF_RUNNER", raising=False)
     repo = write_repo(tmp_path / "repo", {f"s{i}.py": "import matplotlib.pyplot as plt\nplt.plot([1, 2])\n"
                                           for i in range(3)})
-    runs = run_all(repo, ["s0.py", "s1.py", "s2.py"], tmp_path / "art", None, jobs=2)
+    runner = default_runner()
+    try:
+        runs = run_all(repo, ["s0.py", "s1.py", "s2.py"], tmp_path / "art", runner, jobs=2)
+    finally:
+        getattr(runner, "close", lambda: None)()
     assert [r.status for r in runs] == ["ok"] * 3
     assert our_children() == []
 

@@ -14,7 +14,7 @@ import json
 import sys
 
 from tests.builders import axes, figure, run, src
-from figproof.compare.files import OutputComparison
+from figproof.model.comparison import OutputComparison
 from figproof.model.context import RunContext
 from figproof.model.records import FileEvent
 from figproof.report.provenance import build_manifest, environment_fingerprint, provenance_rows

@@ -16,7 +16,7 @@ from pathlib import Path
 import pytest
 
 from figproof.run import sandbox
-from figproof.run.execute import Options, Task, execute_all
+from figproof.run.execute import FreshInterpreter, Options, Task, execute_all
 from figproof.run.sandbox import SandboxPool, copy_repo, restore, scan
 
 
@@ -196,7 +196,7 @@ def test_the_next_script_sees_the_repo_the_previous_one_wrecked(tmp_path: Path) 
         "assert os.path.exists('data/raw/plate1.csv') and os.path.exists('figures/yield.png')\n"
         "assert not os.path.exists('stray.txt')\n")
     options = Options(root=repo, artifacts=tmp_path / "art", jobs=1, timeout=60, memory_limit=1024)
-    runs = execute_all([Task(script="a_wreck.py"), Task(script="b_check.py")], options)
+    runs = execute_all([Task(script="a_wreck.py"), Task(script="b_check.py")], options, FreshInterpreter())
     assert [r.status for r in runs] == ["ok", "ok"], runs[1].stderr_tail
     assert (repo / "data" / "yield.csv").read_text() == "plot,yield\n1,4.2\n2,3.9\n"
 

@@ -219,9 +219,10 @@ def _inside(root: Path, p: Path) -> str | None:
 def cmd_check(args: argparse.Namespace) -> int:
     if args.changed_files:
         from figproof.config import ConfigError, load_config
+        from figproof.rules import by_id
 
         try:
-            root = load_config(Path(".")).root
+            root = load_config(Path("."), rules=by_id()).root
         except ConfigError as exc:
             raise UsageError(str(exc)) from None
         changed = tuple(_repo_relative(root, Path(p)) for p in args.paths)

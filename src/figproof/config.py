@@ -28,12 +28,13 @@ from dataclasses import dataclass, field
 from datetime import date, datetime, time
 from importlib import resources
 from pathlib import Path
-from typing import Any, NamedTuple
+from typing import TYPE_CHECKING, Any, NamedTuple
 
 from figproof.discover import gitrepo
 from figproof.model.findings import SEVERITIES
-from figproof.rules import by_id
-from figproof.rules.base import Rule
+
+if TYPE_CHECKING:  # the catalogue is handed in, so loading a config never imports the rules
+    from figproof.rules.base import Rule
 
 WORKING_DIRS = ("auto", "root", "script")
 FAIL_ON = (*SEVERITIES, "never")
@@ -297,7 +298,7 @@ def parse(
     root: Path,
     source: Path | None = None,
     section: str | None = "tool.figproof",
-    rules: Mapping[str, Rule] | None = None,
+    rules: Mapping[str, Rule],
 ) -> Config:
     """Validate one parsed TOML table into a :class:`Config`.
 
@@ -312,10 +313,8 @@ def parse(
     section
         The table's name in messages; None for the top level of ``figproof.toml``.
     rules
-        Rule catalogue keyed by id; defaults to :func:`figproof.rules.by_id`.
+        Rule catalogue keyed by id (:func:`figproof.rules.by_id`) that per-rule tables are checked against.
     """
-    if rules is None:
-        rules = by_id()
     shown = _display(source) if source is not None else "configuration"
     values: dict[str, Any] = {}
     for key in sorted(table):
@@ -393,7 +392,7 @@ def find_config(path: Path) -> tuple[Path, Path | None, dict[str, Any] | None, s
     return (top if top is not None else folder), None, None, None
 
 
-def load_config(path: Path, *, rules: Mapping[str, Rule] | None = None) -> Config:
+def load_config(path: Path, *, rules: Mapping[str, Rule]) -> Config:
     """Find, read and validate the config that governs ``path``.
 
     Parameters
@@ -401,7 +400,7 @@ def load_config(path: Path, *, rules: Mapping[str, Rule] | None = None) -> Confi
     path
         The checked repo folder (or a file in it).
     rules
-        Rule catalogue to validate per-rule tables against; defaults to all rules.
+        Rule catalogue to validate per-rule tables against (:func:`figproof.rules.by_id`).
 
     Raises
     ------
@@ -419,15 +418,13 @@ def load_config(path: Path, *, rules: Mapping[str, Rule] | None = None) -> Confi
 # --------------------------------------------------------------------------- JSON schema
 
 
-def config_schema(rules: Mapping[str, Rule] | None = None) -> dict[str, Any]:
+def config_schema(rules: Mapping[str, Rule]) -> dict[str, Any]:
     """The shipped JSON schema, with each known rule's table and knob bounds filled in.
 
     The file ``figproof/schema/config.schema.json`` describes rule tables
     generically (any kebab-case id, numeric knobs) so editors can use it as is;
     this function narrows it to the installed rule catalogue.
     """
-    if rules is None:
-        rules = by_id()
     schema = json.loads(resources.files("figproof").joinpath("schema/config.schema.json").read_text("utf-8"))
     severity = {"$ref": "#/$defs/rule-severity"}
     props: dict[str, Any] = {}

@@ -27,7 +27,8 @@ from figproof.compare.runs import committed_vs_regenerated, first_vs_second, not
 from figproof.config import Config, load_config
 from figproof.model.context import Inventory, RunContext
 from figproof.discover.inventory import choose_working_dir, discover
-from figproof.run.execute import Options, Runner, Task, default_runner, execute_all
+from figproof.run.execute import Options, Runner, Task, execute_all
+from figproof.run.pool import default_runner
 from figproof.model.findings import CheckResult, Finding
 from figproof.discover.gitrepo import changed_since
 from figproof.model.records import ScriptRun
@@ -125,7 +126,7 @@ def check(path: Path, options: CheckOptions | None = None, *, runner: Runner | N
         For configuration, discovery and accepted-file problems (the CLI turns them into exit code 2).
     """
     options = options or CheckOptions()
-    config = load_config(path)
+    config = load_config(path, rules=rules.by_id())
     inventory = discover(config)
     artifacts = options.artifacts or Path(tempfile.mkdtemp(prefix="figproof-run-"))
     tasks = plan(config, inventory, select_scripts(config, inventory, options))

@@ -36,6 +36,7 @@ from pathlib import Path
 
 from figproof import rules
 from figproof.config import load_config
+from figproof.rules import by_id
 from figproof.model.context import RunContext
 from figproof.discover.inventory import discover
 from figproof.run.execute import FreshInterpreter, Options, Task, execute_all
@@ -170,7 +171,7 @@ def overhead(root: Path, runner: object, work: Path) -> tuple[float, float, floa
     Comparing its figures with the committed ones and the rules on that run are timed too and counted as
     overhead.
     """
-    config = load_config(root)
+    config = load_config(root, rules=by_id())
     inventory = discover(config)
     runs, walls = [], []
     with SandboxPool(config.root, jobs=1) as sandboxes:  # the repo copies, as execute_all shares them
@@ -222,10 +223,10 @@ def big_rules(work: Path) -> tuple[float, float, float, int, int]:
     root = work / "big"
     root.mkdir()
     (root / "big.py").write_text(BIG, encoding="utf-8")
-    config = load_config(root)
+    config = load_config(root, rules=by_id())
     inventory = discover(config)
     runs = execute_all([Task(script="big.py")], Options(root=root, artifacts=work / "big-art", timeout=600,
-                                                        memory_limit=8192))
+                                                        memory_limit=8192), FreshInterpreter())
     if runs[0].status != "ok":
         sys.exit(f"big.py: {runs[0].status} {runs[0].error} {runs[0].stderr_tail[-500:]}")
     context = RunContext(inventory=inventory, runs=tuple(runs))

@@ -31,64 +31,14 @@ from typing import Any
 import numpy as np
 from PIL import Image, ImageDraw
 
-from figproof.model.records import Serialisable, model
+from figproof.model.comparison import RASTER_SUFFIXES, VECTOR_SUFFIXES, OutputComparison, kind_of
 
 MAX_PIXELS = 50_000_000
 MAX_VECTOR_BYTES = 256 * 1024 * 1024
-RASTER_SUFFIXES = frozenset({".png", ".jpg", ".jpeg", ".tif", ".tiff", ".gif", ".bmp", ".webp"})
-VECTOR_SUFFIXES = frozenset({".pdf", ".svg", ".eps", ".ps"})
-STATUSES = (
-    "same",
-    "drift",
-    "size-mismatch",
-    "missing-committed",
-    "missing-regenerated",
-    "unreadable-committed",
-    "unreadable-regenerated",
-    "too-large",
-)
 # matplotlib's own diff images multiply the absolute difference by 10 (matplotlib.testing.compare.save_diff_image)
 DIFF_GAIN = 10
 _DIFF_PANEL_MAX = 1200  # longest side of one panel of a diff image, in pixels
 _ROWS_PER_BLOCK_PIXELS = 1 << 20  # RMS is summed over blocks of about a megapixel to bound temporaries
-
-
-@model
-class OutputComparison(Serialisable):
-    """The verdict on one committed figure file against its regenerated counterpart.
-
-    ``path`` is the repo-relative path of the output (for a notebook's stored
-    output, the notebook path with ``cell`` and ``output`` set).  ``rms`` is on
-    the 0–255 scale (None when pixels were not compared).  ``sizes`` are
-    ``(width, height)`` in pixels for rasters.  ``*_version`` are the matplotlib
-    versions the files say they were made with, when they say so.
-    """
-
-    path: str
-    kind: str  # raster | vector | other
-    status: str  # one of STATUSES
-    rms: float | None = None
-    differing_pixels: int | None = None
-    total_pixels: int | None = None
-    committed_size: tuple[int, int] | None = None
-    regenerated_size: tuple[int, int] | None = None
-    committed_version: str | None = None
-    regenerated_version: str | None = None
-    tolerance: float = 0.0
-    message: str = ""
-    cell: int | None = None
-    output: int | None = None
-    diff_image: str | None = None
-
-
-def kind_of(path: str | Path) -> str:
-    """Return ``"raster"``, ``"vector"`` or ``"other"`` from a file name's suffix."""
-    suffix = Path(path).suffix.lower()
-    if suffix in RASTER_SUFFIXES:
-        return "raster"
-    if suffix in VECTOR_SUFFIXES:
-        return "vector"
-    return "other"
 
 
 # --------------------------------------------------------------------------
@@ -646,12 +596,9 @@ def notebook_png_outputs(nb_json: Mapping[str, Any]) -> dict[int, list[bytes]]:
 
 __all__ = [
     "MAX_PIXELS",
-    "STATUSES",
-    "OutputComparison",
     "canonical_svg_ids",
     "compare_image_bytes",
     "compare_output",
-    "kind_of",
     "load_pixels",
     "normalise_vector",
     "notebook_png_outputs",

@@ -7,7 +7,7 @@ from dataclasses import dataclass, field
 from pathlib import PurePosixPath
 from types import MappingProxyType
 
-from figproof.compare.files import OutputComparison, kind_of
+from figproof.model.comparison import OutputComparison, kind_of
 from figproof.model.records import FileEvent, ScriptRun
 
 

@@ -21,7 +21,7 @@ import typing
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, ClassVar
+from typing import Any, ClassVar, TypeVar, dataclass_transform
 
 import numpy as np
 
@@ -139,7 +139,13 @@ class Serialisable:
         return _decode(cls, dict(data), store if store is not None else ArrayStore())
 
 
-model = dataclass(frozen=True, slots=True, kw_only=True)
+_T = TypeVar("_T")
+
+
+@dataclass_transform(frozen_default=True, kw_only_default=True, field_specifiers=(field,))
+def model(cls: type[_T]) -> type[_T]:
+    """Make ``cls`` a frozen, slotted, keyword-only dataclass (the shape of every model record)."""
+    return dataclass(frozen=True, slots=True, kw_only=True)(cls)
 
 
 def _empty() -> np.ndarray:

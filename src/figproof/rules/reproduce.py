@@ -12,7 +12,7 @@ from collections.abc import Iterator, Sequence
 
 import numpy as np
 
-from figproof.compare.files import OutputComparison
+from figproof.model.comparison import OutputComparison
 from figproof.model.context import RunContext, is_figure_output, is_repo_path
 from figproof.model.findings import Hit
 from figproof.model.records import FigureModel, FileEvent, ScriptRun, Source

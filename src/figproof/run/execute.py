@@ -29,7 +29,7 @@ import sys
 import tempfile
 import threading
 import time
-from collections.abc import Callable, Iterable, Sequence
+from collections.abc import Callable, Iterable
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, replace
 from pathlib import Path
@@ -286,30 +286,16 @@ def artifact_folder(artifacts: Path, script: str) -> Path:
     return artifacts / _slug(script)
 
 
-def default_runner() -> Runner:
-    """The warm pool where fork is safe and the pool starts; a fresh interpreter per script otherwise.
-
-    ``FIGPROOF_RUNNER=fresh`` forces the fresh-interpreter mode (for debugging and benchmarks).
-    """
-    if os.environ.get("FIGPROOF_RUNNER", "").strip().lower() in ("fresh", "fresh-interpreter"):
-        return FreshInterpreter()
-    from figproof.run.pool import WarmPool
-
-    pool = WarmPool()
-    return pool if pool.start() else FreshInterpreter()
-
-
-def execute_all(tasks: Iterable[Task], options: Options, runner: Runner | None = None,
+def execute_all(tasks: Iterable[Task], options: Options, runner: Runner,
                 progress: Callable[[ScriptRun, int, int], None] | None = None) -> list[ScriptRun]:
     """Run every task (``options.jobs`` at a time); results in task order; one failure never stops the rest.
 
-    With ``runner=None`` a runner is chosen by :func:`default_runner` and shut down before returning.
+    The caller owns ``runner`` (see :func:`figproof.run.pool.default_runner`) and closes it.
     """
     tasks = list(tasks)
     if not tasks:
         return []
-    owned = runner is None
-    active: Runner = default_runner() if runner is None else runner
+    active = runner
     sandboxes = None
     if options.sandboxes is None:
         sandboxes = SandboxPool(options.root, options.skip_copy, jobs=options.jobs)
@@ -336,9 +322,6 @@ def execute_all(tasks: Iterable[Task], options: Options, runner: Runner | None =
         with ThreadPoolExecutor(max_workers=max(1, options.jobs)) as pool:
             list(pool.map(one, range(len(tasks))))
     finally:
-        close = getattr(active, "close", None)
-        if owned and callable(close):
-            close()
         if sandboxes is not None:
             sandboxes.close()
     return [r for r in results if r is not None]

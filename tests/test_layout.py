@@ -1,0 +1,100 @@
+"""The package's boundaries: what may import what (docs/architecture.md describes them)."""
+
+from __future__ import annotations
+
+import ast
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+PACKAGE = Path(__file__).resolve().parents[1] / "src" / "figproof"
+
+
+def _module_name(path: Path) -> str:
+    parts = path.relative_to(PACKAGE.parent).with_suffix("").parts
+    return ".".join(parts[:-1] if parts[-1] == "__init__" else parts)
+
+
+def _sources() -> dict[str, Path]:
+    return {_module_name(p): p for p in sorted(PACKAGE.rglob("*.py")) if "demo" not in p.relative_to(PACKAGE).parts}
+
+
+def _imports(path: Path, package: str) -> set[str]:
+    """Every module named by an import anywhere in the file, lazy imports inside functions included."""
+    found: set[str] = set()
+    for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+        if isinstance(node, ast.Import):
+            found.update(alias.name for alias in node.names)
+        elif isinstance(node, ast.ImportFrom):
+            base = node.module or ""
+            if node.level:
+                base = ".".join(package.split(".")[: len(package.split(".")) - node.level + 1] + ([base] if base else []))
+            found.add(base)
+            found.update(f"{base}.{alias.name}" for alias in node.names)
+    return found
+
+
+def _graph() -> dict[str, set[str]]:
+    sources = _sources()
+    graph: dict[str, set[str]] = {}
+    for name, path in sources.items():
+        package = name if path.name == "__init__.py" else name.rpartition(".")[0]
+        graph[name] = {m for m in _imports(path, package) if m in sources and m != name}
+    return graph
+
+
+def test_no_import_cycles_between_figproof_modules() -> None:
+    graph = _graph()
+    # a cycle exists iff a depth-first search meets a module that is still on its stack
+    state: dict[str, int] = {}
+    cycle: list[str] = []
+
+    def visit(node: str, stack: list[str]) -> bool:
+        state[node] = 1
+        for nxt in sorted(graph[node]):
+            if state.get(nxt) == 1:
+                cycle.extend(stack[stack.index(nxt):] + [node, nxt] if nxt in stack else [node, nxt])
+                return True
+            if nxt not in state and visit(nxt, [*stack, node]):
+                return True
+        state[node] = 2
+        return False
+
+    for start in sorted(graph):
+        if start not in state and visit(start, []):
+            break
+    assert not cycle, " -> ".join(cycle)
+
+
+def test_only_the_child_package_imports_pyplot() -> None:
+    offenders = [name for name, path in _sources().items()
+                 if not name.startswith("figproof.child")
+                 and any(m == "matplotlib.pyplot" for m in _imports(path, name.rpartition(".")[0]))]
+    assert offenders == []
+
+
+def test_rules_science_and_model_import_no_drawing_or_image_library() -> None:
+    heavy = ("matplotlib", "PIL")
+    offenders = []
+    for name, path in _sources().items():
+        if name.split(".")[1:2] and name.split(".")[1] in ("rules", "science", "model", "policy"):
+            bad = sorted(m for m in _imports(path, name) if m.split(".")[0] in heavy)
+            if bad:
+                offenders.append(f"{name}: {bad}")
+    assert offenders == []
+
+
+@pytest.mark.parametrize(("module", "absent"), [
+    ("figproof.rules", ("matplotlib", "PIL")),
+    ("figproof.config", ("figproof.rules", "matplotlib", "PIL")),
+    ("figproof.discover.inventory", ("figproof.rules", "matplotlib", "PIL")),
+    ("figproof.model.context", ("matplotlib", "PIL")),
+])
+def test_importing_a_layer_loads_nothing_it_does_not_need(module: str, absent: tuple[str, ...]) -> None:
+    code = (f"import sys, {module}; "
+            f"print(sorted({{m.split('.')[0] if not m.startswith('figproof') else m for m in sys.modules}} "
+            f"& set({list(absent)!r})))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
+    assert out.strip() == "[]"
