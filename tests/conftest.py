@@ -8,7 +8,10 @@ the header and the summary say what to install.
 from __future__ import annotations
 
 import importlib.util
+from collections.abc import Iterator
 from typing import Any
+
+import pytest
 
 NEEDED = ("figproof", "numpy", "pandas", "scipy", "matplotlib", "PIL", "colorspacious", "nbformat", "jsonschema",
           "yaml")
@@ -26,3 +29,19 @@ def pytest_report_header(config: Any) -> str | None:
 def pytest_terminal_summary(terminalreporter: Any) -> None:
     if MISSING:
         terminalreporter.write_line(HINT, yellow=True)
+
+
+@pytest.fixture(scope="session")
+def warm_runner() -> Iterator[Any]:
+    """One runner for the whole session (the warm pool where it starts), for tests that check many small repos.
+
+    Starting a pool costs over a second; a check of one small script through a running pool costs a fifth of
+    that.  Each check still gets its own repo copy and a freshly forked child, so sharing changes no result.
+    """
+    from figproof.run.pool import default_runner
+
+    runner = default_runner()
+    yield runner
+    close = getattr(runner, "close", None)
+    if callable(close):
+        close()

@@ -9,6 +9,7 @@ from pathlib import Path
 import nbformat
 import pytest
 
+from figproof.model.findings import Finding
 from figproof.policy.accept import (
     AcceptedFileError,
     Entry,
@@ -19,7 +20,6 @@ from figproof.policy.accept import (
     parse_allow_comments,
     write_accepted,
 )
-from figproof.model.findings import Finding
 from figproof.rules import fingerprint
 
 KNOWN = {"bars-for-continuous", "points-hidden", "axis-clips-data"}

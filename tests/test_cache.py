@@ -19,8 +19,9 @@ from pathlib import Path
 
 import pytest
 
+from figproof.discover.imports import local_imports, search_folders
+from figproof.model.records import FileEvent, ScriptError, ScriptRun, dump_run
 from figproof.run.cache import (
-    HIT_NOTE,
     CachingRunner,
     cacheable,
     dependencies,
@@ -30,8 +31,6 @@ from figproof.run.cache import (
     prune,
 )
 from figproof.run.execute import FreshInterpreter, Options, Task, artifact_folder
-from figproof.discover.imports import local_imports, search_folders
-from figproof.model.records import FileEvent, ScriptError, ScriptRun, dump_run
 
 ENV = {"python": "3.11.7", "figproof": "test"}  # fixed, so the tests do not depend on this interpreter
 
@@ -84,6 +83,13 @@ def options_for(root: Path, **kw: object) -> Options:
 TASK = Task(script="figures/yield.py")
 
 
+
+def hit(runner: CachingRunner, task: Task, options: Options) -> bool:
+    """Run ``task`` through the cache; True when its result came from the cache."""
+    runner.answered.discard(task.script)
+    runner.run(task, options)
+    return task.script in runner.answered
+
 def cached(inner: FakeRunner, root: Path, *, environment: dict[str, str] = ENV,
            config_fingerprint: str = "") -> CachingRunner:
     return CachingRunner(inner, root / ".figproof-cache", environment=environment,
@@ -94,15 +100,14 @@ def test_second_run_is_a_hit_and_restores_the_artifact_folder(repo: Path) -> Non
     inner = FakeRunner()
     runner = cached(inner, repo)
     first = runner.run(TASK, options_for(repo))
-    assert inner.calls == 1 and HIT_NOTE not in first.notes
+    assert inner.calls == 1 and runner.answered == set()
     out = artifact_folder(options_for(repo).artifacts, TASK.script)
     (out / "renders" / "figure-1.png").unlink()  # a later check starts from an empty artifacts folder
     second = runner.run(TASK, options_for(repo))
     assert inner.calls == 1
-    assert second.notes == (HIT_NOTE,)
+    assert second.notes == () and runner.answered == {TASK.script}
     assert (second.status, second.events, second.seconds) == (first.status, first.events, first.seconds)
     assert (out / "renders" / "figure-1.png").read_bytes() == b"render 1"
-    assert (runner.hits, runner.misses) == (1, 1)
     assert (repo / ".figproof-cache" / ".gitignore").read_text() == "*\n"
 
 
@@ -114,7 +119,7 @@ def test_a_run_kept_without_renderings_serves_only_checks_that_need_none(repo: P
     assert inner.calls == 1
     runner.run(TASK, options_for(repo, renders=True))  # --images needs the pixels: run again, keep them
     assert inner.calls == 2
-    assert HIT_NOTE in runner.run(TASK, options_for(repo, renders=False)).notes  # renderings serve both
+    assert hit(runner, TASK, options_for(repo, renders=False))  # renderings serve both
     assert inner.calls == 2
 
 
@@ -123,7 +128,7 @@ def test_changed_input_content_is_a_miss(repo: Path) -> None:
     runner = cached(inner, repo)
     runner.run(TASK, options_for(repo))
     (repo / "data" / "yield.csv").write_text("plot,yield\n1,4.2\n2,3.8\n")
-    assert HIT_NOTE not in runner.run(TASK, options_for(repo)).notes
+    assert not hit(runner, TASK, options_for(repo))
     assert inner.calls == 2
     runner.run(TASK, options_for(repo))
     assert inner.calls == 2  # the new content is now the cached one
@@ -243,7 +248,7 @@ def test_corrupt_key_json_is_a_miss_and_is_replaced(repo: Path) -> None:
     assert inner.calls == 2
     assert any("unreadable" in n and ".figproof-cache/runs/" in n for n in run.notes)
     json.loads(key.read_text())  # replaced by a whole key
-    assert runner.run(TASK, options_for(repo)).notes == (HIT_NOTE,)
+    assert hit(runner, TASK, options_for(repo))
 
 
 def test_corrupt_cached_run_record_is_a_miss(repo: Path) -> None:
@@ -252,9 +257,10 @@ def test_corrupt_cached_run_record_is_a_miss(repo: Path) -> None:
     runner.run(TASK, options_for(repo))
     entry = repo / ".figproof-cache" / "runs" / entry_name(TASK.script)
     (entry / "artifact" / "run.json").write_text("not json")
+    runner.answered.clear()
     run = runner.run(TASK, options_for(repo))
-    assert inner.calls == 2 and HIT_NOTE not in run.notes
-    assert runner.run(TASK, options_for(repo)).notes == (HIT_NOTE,)
+    assert inner.calls == 2 and not runner.answered
+    assert hit(runner, TASK, options_for(repo))
 
 
 def test_read_only_cache_folder_falls_back_to_running(repo: Path) -> None:
@@ -409,14 +415,15 @@ def test_end_to_end_with_a_real_child(tmp_path: Path) -> None:
     first = runner.run(TASK, options)
     assert first.status == "ok", first.stderr_tail
     assert [e.path for e in first.events if e.action == "read"] == ["data/yield.csv"]
+    runner.answered.clear()
     second = runner.run(TASK, options)
-    assert len(calls) == 1 and second.notes[-1] == HIT_NOTE
+    assert len(calls) == 1 and runner.answered == {TASK.script}
     assert replace(second, notes=first.notes).to_json() == first.to_json()
     out = artifact_folder(options.artifacts, TASK.script)
     assert (out / "regenerated" / "figures" / "yield.png").is_file()
     (root / "data" / "yield.csv").write_text("plot,yield\n1,4.2\n2,3.9\n3,4.5\n")
-    assert HIT_NOTE not in runner.run(TASK, options).notes and len(calls) == 2
+    assert not hit(runner, TASK, options) and len(calls) == 2
     (root / "figures" / "yield.py").write_text(SCRIPT.replace('"o"', '"s"'))
-    assert HIT_NOTE not in runner.run(TASK, options).notes and len(calls) == 3
-    assert runner.run(TASK, options).notes[-1] == HIT_NOTE and len(calls) == 3
+    assert not hit(runner, TASK, options) and len(calls) == 3
+    assert hit(runner, TASK, options) and len(calls) == 3
     assert not (root / "figures" / "yield.png").exists()  # the working tree is still untouched

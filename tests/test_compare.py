@@ -169,7 +169,7 @@ def test_pixel_difference_matches_imagechops(tmp_path: Path) -> None:
 def test_identical_pixels_match_imagechops_bbox(tmp_path: Path) -> None:
     a, _ = _pair(tmp_path)
     # RGB file vs the same pixels stored as opaque RGBA: Pillow sees no difference after conversion
-    rgba = np.concatenate([a, np.full(a.shape[:2] + (1,), 255, np.uint8)], axis=-1)
+    rgba = np.concatenate([a, np.full((*a.shape[:2], 1), 255, np.uint8)], axis=-1)
     ca, cb = _png(tmp_path / "c.png", a), _png(tmp_path / "r.png", rgba)
     with Image.open(ca) as ia, Image.open(cb) as ib:
         bbox = ImageChops.difference(ia.convert("RGB"), ib.convert("RGB")).getbbox()

@@ -17,8 +17,8 @@ from pathlib import Path
 import pytest
 
 from figproof import cli
-from figproof.run.execute import FreshInterpreter, Options, Task, execute_all
 from figproof.model.records import ScriptRun
+from figproof.run.execute import FreshInterpreter, Options, Task, execute_all
 from figproof.run.pool import WarmPool
 
 pytestmark = pytest.mark.skipif(not Path("/proc/self/stat").exists(),

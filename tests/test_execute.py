@@ -11,9 +11,8 @@ from pathlib import Path
 
 import pytest
 
-from figproof.run import execute
-from figproof.run.execute import FreshInterpreter, Options, Task, execute_all
 from figproof.model.records import ScriptRun
+from figproof.run.execute import FreshInterpreter, Options, Task, execute_all
 from figproof.run.pool import WarmPool, default_runner
 
 posix_only = pytest.mark.skipif(os.name != "posix" or sys.platform == "darwin",

@@ -15,8 +15,8 @@ from pathlib import Path
 
 import pytest
 
-from figproof.run.execute import Options, Task, execute_all
 from figproof.model.records import ScriptRun
+from figproof.run.execute import Options, Task, execute_all
 from figproof.run.pool import WarmPool
 
 SCRIPTS = {

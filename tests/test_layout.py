@@ -55,7 +55,7 @@ def test_no_import_cycles_between_figproof_modules() -> None:
         state[node] = 1
         for nxt in sorted(graph[node]):
             if state.get(nxt) == 1:
-                cycle.extend(stack[stack.index(nxt):] + [node, nxt] if nxt in stack else [node, nxt])
+                cycle.extend([*stack[stack.index(nxt):], node, nxt] if nxt in stack else [node, nxt])
                 return True
             if nxt not in state and visit(nxt, [*stack, node]):
                 return True

@@ -13,11 +13,11 @@ import hashlib
 import json
 import sys
 
-from tests.builders import axes, figure, run, src
 from figproof.model.comparison import OutputComparison
 from figproof.model.context import RunContext
 from figproof.model.records import FileEvent
 from figproof.report.provenance import build_manifest, environment_fingerprint, provenance_rows
+from tests.builders import axes, figure, run, src
 
 ABC_SHA256 = "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"  # FIPS 180-2, B.1
 

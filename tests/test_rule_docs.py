@@ -16,6 +16,7 @@ import pytest
 from figproof.docgen import pages
 from figproof.pipeline import CheckOptions, check
 from figproof.rules import RULES
+from figproof.run.execute import Runner
 
 DOCS = Path(__file__).resolve().parents[1] / "docs" / "rules"
 
@@ -30,29 +31,29 @@ def _repo(tmp_path: Path, name: str, script: str, committed: Path | None) -> Pat
     return repo
 
 
-def _regenerated(tmp_path: Path, script: str) -> Path:
+def _regenerated(tmp_path: Path, script: str, runner: Runner) -> Path:
     """Run the Good example once and keep the files it saves (they become the committed figures)."""
     repo = _repo(tmp_path, "first", script, None)
     artifacts = tmp_path / "artifacts"
-    check(repo, CheckOptions(artifacts=artifacts))
+    check(repo, CheckOptions(artifacts=artifacts), runner=runner)
     out = artifacts / "fig.py" / "regenerated"
     return out if out.exists() else tmp_path / "none"
 
 
-def _rules_found(repo: Path, rule_id: str) -> list:
+def _rules_found(repo: Path, rule_id: str, runner: Runner) -> list:
     twice = rule_id == "output-nondeterministic"
     options = CheckOptions(twice=True) if twice else CheckOptions()
-    result = check(repo, options).result
+    result = check(repo, options, runner=runner).result
     return [f for f in result.findings if f.rule == rule_id]
 
 
 @pytest.mark.slow
 @pytest.mark.parametrize("rule", RULES, ids=lambda r: r.id)
-def test_bad_raises_and_good_does_not(rule, tmp_path: Path) -> None:
-    committed = _regenerated(tmp_path, rule.good)
-    bad = _rules_found(_repo(tmp_path, "bad", rule.bad, committed), rule.id)
+def test_bad_raises_and_good_does_not(rule, tmp_path: Path, warm_runner: Runner) -> None:
+    committed = _regenerated(tmp_path, rule.good, warm_runner)
+    bad = _rules_found(_repo(tmp_path, "bad", rule.bad, committed), rule.id, warm_runner)
     assert bad, f"{rule.id}: the Bad example raised nothing"
-    good = _rules_found(_repo(tmp_path, "good", rule.good, committed), rule.id)
+    good = _rules_found(_repo(tmp_path, "good", rule.good, committed), rule.id, warm_runner)
     assert not good, f"{rule.id}: the Good example raised {[f.message for f in good]}"
 
 

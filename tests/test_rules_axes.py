@@ -4,6 +4,10 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+
+from figproof.model.findings import Hit
+from figproof.model.records import Axes, Violin
+from figproof.rules.axes import axis_clips_data, axis_empty_span
 from tests.builders import (
     Axis,
     ErrorBars,
@@ -19,10 +23,6 @@ from tests.builders import (
     points,
     text,
 )
-
-from figproof.model.findings import Hit
-from figproof.model.records import Axes, Violin
-from figproof.rules.axes import axis_clips_data, axis_empty_span
 
 # the 24 root lengths of the rule's Bad example: 9 of them exceed 40
 LENGTHS = np.array([22, 25, 28, 31, 34, 37, 41, 44, 26, 29, 32, 35, 38, 42, 45, 48,

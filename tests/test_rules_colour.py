@@ -14,11 +14,11 @@ import matplotlib
 import numpy as np
 import pytest
 
-from tests.builders import axes, bars, figure, line, points, src
 from figproof.model.findings import Hit
 from figproof.model.records import ColorMapping, Patch, Text
 from figproof.rules import colour
 from figproof.rules.base import Rule
+from tests.builders import axes, bars, figure, line, points, src
 
 
 def hexrgba(hex_: str, alpha: float = 1.0) -> tuple[float, float, float, float]:

@@ -6,6 +6,9 @@ import numpy as np
 import pytest
 from scipy import stats
 
+from figproof.model.records import Axis
+from figproof.rules import distribution
+from figproof.rules.distribution import box_hides_modes, dots_binned, errorbars_sem, summary_hides_small_n
 from tests.builders import (
     asym_errorbars,
     axes,
@@ -19,9 +22,6 @@ from tests.builders import (
     table_of,
     violin_of,
 )
-from figproof.model.records import Axis
-from figproof.rules import distribution
-from figproof.rules.distribution import box_hides_modes, dots_binned, errorbars_sem, summary_hides_small_n
 
 
 def hits(rule, fig, **overrides):
@@ -44,7 +44,7 @@ def test_module_is_listed() -> None:
 
     ids = {r.id for r in rules.RULES}
     assert {"dots-binned", "summary-hides-small-n", "box-hides-modes", "errorbars-sem"} <= ids
-    assert distribution.RULES == (dots_binned, summary_hides_small_n, box_hides_modes, errorbars_sem)
+    assert (dots_binned, summary_hides_small_n, box_hides_modes, errorbars_sem) == distribution.RULES
 
 
 def test_rules_are_documented() -> None:

@@ -7,11 +7,11 @@ import math
 
 import numpy as np
 import pytest
-from tests.builders import Axis, axes_with, bars_px, figure, patch, points_px
 
 from figproof.model.findings import Hit
 from figproof.model.records import Axes
 from figproof.rules.visibility import marker_radius_px, overlap, points_hidden
+from tests.builders import Axis, axes_with, bars_px, figure, patch, points_px
 
 BOX = (0.0, 0.0, 1000.0, 1000.0)
 
@@ -298,9 +298,8 @@ def test_a_default_strip_plot_of_30_per_group_with_median_lines_passes(seed: int
     # at the error level, and a jittered dot plot with a median line passes every rule here.  The defaults
     # are read from seaborn 0.13's source: stripplot size=5 (s = size**2 = 25 points²) and jitter drawn
     # uniformly within ±0.1 of the category spacing; figure 640x480 px at dpi 100 (matplotlib defaults).
-    from tests.builders import BOX, line, to_display
-
     from figproof.rules.axes import axis_clips_data, axis_empty_span
+    from tests.builders import BOX, line, to_display
 
     rng = np.random.default_rng(seed)
     groups = [rng.normal(mu, 2.0, 30) for mu in (10.0, 12.0, 11.0)]
@@ -328,6 +327,6 @@ def test_nearest_neighbours_match_scipy_ckdtree(n: int) -> None:
 
     xy = np.random.default_rng(n).uniform(0, 300, (n, 2))
     near, other = _nearest(xy)
-    dist, idx = cKDTree(xy).query(xy, k=2)  # reference: scipy documentation, cKDTree.query
+    dist, _idx = cKDTree(xy).query(xy, k=2)  # reference: scipy documentation, cKDTree.query
     np.testing.assert_allclose(near, dist[:, 1], rtol=1e-12)
     np.testing.assert_allclose(np.hypot(*(xy - xy[other]).T), dist[:, 1], rtol=1e-12)

@@ -159,22 +159,22 @@ def cmd_explain(args: argparse.Namespace) -> int:
 
 
 def _one_line_errors() -> tuple[type[Exception], ...]:
-    from figproof.policy.accept import AcceptedFileError
     from figproof.config import ConfigError
-    from figproof.discover.inventory import DiscoveryError
     from figproof.discover.gitrepo import GitError
+    from figproof.discover.inventory import DiscoveryError
     from figproof.discover.shard import ShardError
+    from figproof.policy.accept import AcceptedFileError
 
     return (ConfigError, DiscoveryError, AcceptedFileError, GitError, ShardError)
 
 
-def _progress(args: argparse.Namespace):  # noqa: ANN202 - returns a callback or None
+def _progress(args: argparse.Namespace):
     from figproof.report.write import progress_printer
 
     return progress_printer(quiet=args.quiet, verbose=getattr(args, "verbose", False))
 
 
-def do_check(path: Path, args: argparse.Namespace, **option_overrides: object):  # noqa: ANN201
+def do_check(path: Path, args: argparse.Namespace, **option_overrides: object):
     """Run the pipeline for ``path`` with the command line's options; returns a Checked."""
     from figproof.pipeline import CheckOptions, check
 
@@ -275,8 +275,8 @@ def cmd_accept(args: argparse.Namespace) -> int:
 
 
 def cmd_merge(args: argparse.Namespace) -> int:
-    from figproof.report.write import write_merged
     from figproof.discover.shard import ShardError
+    from figproof.report.write import write_merged
 
     texts = []
     for name in args.reports:

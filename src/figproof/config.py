@@ -118,9 +118,7 @@ def _show(value: Any) -> str:
     """A value as the user wrote it in TOML, shortened for a one-line message."""
     if isinstance(value, bool):
         text = "true" if value else "false"
-    elif isinstance(value, str):
-        text = repr(value)
-    elif isinstance(value, (int, float)):
+    elif isinstance(value, (str, int, float)):
         text = repr(value)
     elif isinstance(value, (datetime, date, time)):
         text = value.isoformat()
@@ -454,14 +452,14 @@ def config_schema(rules: Mapping[str, Rule]) -> dict[str, Any]:
 
 __all__ = [
     "CONFIG_FILE",
-    "Config",
-    "ConfigError",
     "FAIL_ON",
     "KEYS",
     "PYPROJECT",
     "RULE_SEVERITIES",
-    "RuleSettings",
     "WORKING_DIRS",
+    "Config",
+    "ConfigError",
+    "RuleSettings",
     "config_schema",
     "find_config",
     "load_config",

@@ -14,6 +14,14 @@ from dataclasses import dataclass, replace
 from pathlib import Path, PurePosixPath
 
 from figproof import __version__, rules
+from figproof.compare.runs import committed_vs_regenerated, first_vs_second, notebook_outputs
+from figproof.config import Config, load_config
+from figproof.discover.gitrepo import changed_since
+from figproof.discover.inventory import choose_working_dir, discover
+from figproof.discover.shard import select_shard
+from figproof.model.context import Inventory, RunContext
+from figproof.model.findings import CheckResult, Finding
+from figproof.model.records import ScriptRun
 from figproof.policy.accept import (
     Allow,
     allow_key,
@@ -22,18 +30,10 @@ from figproof.policy.accept import (
     notebook_allow_comments,
     parse_allow_comments,
 )
-from figproof.run.cache import HIT_NOTE, CachingRunner, prune, recorded_dependencies
-from figproof.compare.runs import committed_vs_regenerated, first_vs_second, notebook_outputs
-from figproof.config import Config, load_config
-from figproof.model.context import Inventory, RunContext
-from figproof.discover.inventory import choose_working_dir, discover
+from figproof.policy.verdict import summarise
+from figproof.run.cache import CachingRunner, prune, recorded_dependencies
 from figproof.run.execute import Options, Runner, Task, execute_all
 from figproof.run.pool import default_runner
-from figproof.model.findings import CheckResult, Finding
-from figproof.discover.gitrepo import changed_since
-from figproof.model.records import ScriptRun
-from figproof.policy.verdict import summarise
-from figproof.discover.shard import select_shard
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -144,11 +144,10 @@ def check(path: Path, options: CheckOptions | None = None, *, runner: Runner | N
             again = replace(exec_options, artifacts=artifacts / "second-run")
             second = (again.artifacts, execute_all([Task(script=r.path, working_dir=r.working_dir) for r in runs],
                                                    again, runner=bare))
+    # whether a result came from the cache is told on the terminal, not in reports (they stay byte-identical)
+    cached = len(active.answered) if isinstance(active, CachingRunner) else 0
     if options.cache and not selected:
         prune(config.cache_path(), inventory.scripts)
-    # whether a result came from the cache is told on the terminal, not in reports (they stay byte-identical)
-    cached = sum(1 for r in runs if HIT_NOTE in r.notes)
-    runs = tuple(replace(r, notes=tuple(n for n in r.notes if n != HIT_NOTE)) for r in runs)
     context = build_context(config, inventory, runs, artifacts, second)
     findings = rules.apply(runs, context, config.rules)
     findings, notes = accept_findings(findings, config, inventory)

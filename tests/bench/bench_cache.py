@@ -13,9 +13,9 @@ import tempfile
 import time
 from pathlib import Path
 
+from figproof.pipeline import CheckOptions, check
 from figproof.run.cache import HIT_NOTE, CachingRunner
 from figproof.run.execute import FreshInterpreter, Options, Task
-from figproof.pipeline import CheckOptions, check
 
 SCRIPTS = 40
 

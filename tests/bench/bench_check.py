@@ -36,11 +36,11 @@ from pathlib import Path
 
 from figproof import rules
 from figproof.config import load_config
-from figproof.rules import by_id
-from figproof.model.context import RunContext
 from figproof.discover.inventory import discover
-from figproof.run.execute import FreshInterpreter, Options, Task, execute_all
+from figproof.model.context import RunContext
 from figproof.pipeline import build_context
+from figproof.rules import by_id
+from figproof.run.execute import FreshInterpreter, Options, Task, execute_all
 from figproof.run.pool import WarmPool
 from figproof.run.sandbox import SandboxPool
 
@@ -185,7 +185,7 @@ def overhead(root: Path, runner: object, work: Path) -> tuple[float, float, floa
                 sys.exit(f"{run.path}: {run.status} {run.error}")
             runs.append(run)
     totals, computes, extra, rule_times = [], [], [], []
-    for run, wall in zip(runs, walls):
+    for run, wall in zip(runs, walls, strict=False):
         started = time.perf_counter()
         context = build_context(config, inventory, (run,), options.artifacts, None)  # committed-figure compare
         rules.apply((run,), context, config.rules)

@@ -17,10 +17,10 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # tests/ for builders
 
-from builders import axes, figure, line  # noqa: E402
+from builders import axes, figure, line
 
-from figproof.model.records import ColorMapping, Text  # noqa: E402
-from figproof.rules import colour  # noqa: E402
+from figproof.model.records import ColorMapping, Text
+from figproof.rules import colour
 
 
 def jet_samples() -> np.ndarray:
@@ -32,7 +32,7 @@ def jet_samples() -> np.ndarray:
     return np.stack([r, g, b, np.ones_like(t)], axis=1)
 
 
-def model():  # noqa: ANN201 - a FigureModel
+def model():
     hues = np.linspace(0, 1, 50, endpoint=False)
     # 50 colours around a hue circle at two lightness levels, so some pairs clash and some do not
     colors = [(0.5 + 0.4 * np.cos(2 * np.pi * h), 0.5 + 0.4 * np.cos(2 * np.pi * (h - 1 / 3)),
@@ -48,7 +48,7 @@ def model():  # noqa: ANN201 - a FigureModel
     return figure(left, right)
 
 
-def best(fn, repeat: int = 5) -> tuple[float, float]:  # noqa: ANN001 - any callable
+def best(fn, repeat: int = 5) -> tuple[float, float]:
     times = []
     for _ in range(repeat):
         t0 = time.perf_counter()
@@ -77,7 +77,7 @@ def main() -> None:
         img = Image.new("RGB", (2000, 2000), (255, 255, 255))
         draw = ImageDraw.Draw(img)
         for k, c in enumerate(fig.axes[0].lines):
-            rgb = tuple(int(round(v * 255)) for v in c.color[:3])
+            rgb = tuple(round(v * 255) for v in c.color[:3])
             draw.line((0, 40 * k, 2000, 40 * k + 300), fill=rgb, width=5)
         img.save(render)
         for width in (900, 2000):

@@ -13,12 +13,11 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))  # the repo root, for tests.builders
 
-from tests.builders import Axis, axes_with, figure, points_px  # noqa: E402
+from figproof.rules.visibility import GRID_ABOVE, points_hidden
+from tests.builders import Axis, axes_with, figure, points_px
 
-from figproof.rules.visibility import GRID_ABOVE, points_hidden  # noqa: E402
 
-
-def model(n: int, seed: int = 0):  # noqa: ANN201 - a FigureModel
+def model(n: int, seed: int = 0):
     """A 640x480 px axes at dpi 100 with n default-size markers scattered over a Gaussian blob."""
     rng = np.random.default_rng(seed)
     box = (80.0, 52.8, 576.0, 422.4)

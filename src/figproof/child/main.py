@@ -11,7 +11,6 @@ from __future__ import annotations
 
 import json
 import os
-import re
 import sys
 import time
 import traceback
@@ -20,7 +19,6 @@ from pathlib import Path
 from typing import Any
 
 CAPTURE_LIMIT = 1 << 20  # bytes of the script's own stdout/stderr kept per stream
-MAGIC_RE = re.compile(r"^\s*([%!]|\?\w|\w+\?$)")
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -82,26 +80,14 @@ def limit_memory(mib: int) -> bool:
 
 
 def notebook_cells(path: Path) -> list[tuple[int, str, int]]:
-    """Code cells of a notebook as (index, source, magic lines skipped); raises ValueError when unreadable."""
-    import nbformat
+    """Code cells of a notebook as (number, Python source, IPython lines blanked); ValueError when unreadable."""
+    from figproof.notebook import NotebookError, blanked_lines, code_cells, python_source
 
     try:
-        nb = nbformat.read(str(path), as_version=4)
-    except Exception as exc:  # nbformat raises several types for corrupt files
-        raise ValueError(f"cannot read notebook: {str(exc).splitlines()[0] if str(exc) else type(exc).__name__}")
-    cells = []
-    for index, cell in enumerate(nb.cells, start=1):  # cells count from 1, markdown cells included
-        if cell.get("cell_type") != "code":
-            continue
-        lines = cell.get("source", "").splitlines()
-        skipped = 0
-        for i, text in enumerate(lines):
-            if MAGIC_RE.match(text):
-                # keep the line count so findings point at the right line
-                lines[i] = ""
-                skipped += 1
-        cells.append((index, "\n".join(lines) + "\n", skipped))
-    return cells
+        cells = code_cells(path.read_bytes())
+    except (OSError, NotebookError) as exc:
+        raise ValueError(f"cannot read notebook: {exc}") from None
+    return [(c.number, python_source(c.source) + "\n", blanked_lines(c.source)) for c in cells]
 
 
 def _user_frame(tb: Any, rec: Any) -> Any:
@@ -164,7 +150,7 @@ def _run_notebook(path: Path, rec: Any) -> None:
         if skipped:
             rec.notes.append(f"cell {index}: skipped {skipped} IPython magic or shell line(s)")
         code = compile(source, f"{path}#cell={index}", "exec")
-        exec(code, namespace)  # noqa: S102 - running the user's notebook is the job
+        exec(code, namespace)
 
 
 def _display(*objs: Any, **kwargs: Any) -> None:

@@ -155,7 +155,7 @@ def _same_channels(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray
     def rgba(x: np.ndarray) -> np.ndarray:
         if x.shape[-1] == 4:
             return x
-        return np.concatenate([x, np.full(x.shape[:2] + (1,), 255, np.uint8)], axis=-1)
+        return np.concatenate([x, np.full((*x.shape[:2], 1), 255, np.uint8)], axis=-1)
 
     return rgba(a), rgba(b)
 

@@ -13,8 +13,8 @@ from pathlib import Path
 
 from figproof.compare.files import OutputComparison, compare_image_bytes, compare_output, notebook_png_outputs
 from figproof.model.context import is_figure_output
-from figproof.run.execute import artifact_folder
 from figproof.model.records import ScriptRun
+from figproof.run.execute import artifact_folder
 
 
 def saved_outputs(run: ScriptRun) -> list[str]:

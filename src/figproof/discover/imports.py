@@ -17,10 +17,11 @@ file added later is noticed.
 from __future__ import annotations
 
 import ast
-import json
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
+
+from figproof.notebook import NotebookError, code_cells, python_source
 
 MAX_MODULES = 500  # a repo with more local modules than this is unusual; stop following there
 
@@ -64,18 +65,9 @@ def code_of(path: Path) -> list[str]:
     if path.suffix != ".ipynb":
         return [text]
     try:
-        cells = json.loads(text).get("cells", [])
-    except (ValueError, AttributeError):
+        return [python_source(c.source) for c in code_cells(text)]
+    except NotebookError:
         return []
-    out = []
-    for cell in cells if isinstance(cells, list) else []:
-        if not isinstance(cell, dict) or cell.get("cell_type") != "code":
-            continue
-        src = cell.get("source", "")
-        src = "".join(src) if isinstance(src, list) else str(src)
-        # magics and shell escapes are not Python; the child skips them too
-        out.append("\n".join("" if ln.lstrip().startswith(("%", "!")) else ln for ln in src.splitlines()))
-    return out
 
 
 def _imported(tree: ast.AST) -> list[tuple[int, str, tuple[str, ...]]]:

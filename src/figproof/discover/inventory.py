@@ -20,26 +20,24 @@ matches a folder covers everything below it.
 from __future__ import annotations
 
 import ast
-import json
 import os
 import re
 from collections.abc import Iterable, Iterator
 from functools import lru_cache
 from pathlib import Path
-from typing import Any
 
-from figproof.discover import gitrepo
 from figproof.config import Config
+from figproof.discover import gitrepo
 from figproof.model.context import Inventory
+from figproof.notebook import MATPLOTLIB_MAGIC, Cell, NotebookError, code_cells, python_source
 
 SCRIPT_SUFFIXES = (".py", ".ipynb")
 DATA_SUFFIXES = frozenset(
-    ".csv .tsv .txt .dat .tab .xlsx .xls .xlsm .ods .json .jsonl .ndjson .parquet .feather .arrow "
-    ".npy .npz .h5 .hdf5 .hdf .he5 .nc .mat .pkl .pickle .sav .dta .xpt .sas7bdat .fits .fit .zip".split()
+    [".csv", ".tsv", ".txt", ".dat", ".tab", ".xlsx", ".xls", ".xlsm", ".ods", ".json", ".jsonl", ".ndjson", ".parquet", ".feather", ".arrow", ".npy", ".npz", ".h5", ".hdf5", ".hdf", ".he5", ".nc", ".mat", ".pkl", ".pickle", ".sav", ".dta", ".xpt", ".sas7bdat", ".fits", ".fit", ".zip"]
 )
-FIGURE_SUFFIXES = frozenset(".png .svg .svgz .pdf .jpg .jpeg .tif .tiff .eps .ps .gif .webp".split())
+FIGURE_SUFFIXES = frozenset([".png", ".svg", ".svgz", ".pdf", ".jpg", ".jpeg", ".tif", ".tiff", ".eps", ".ps", ".gif", ".webp"])
 # A compressed data file (results.csv.gz) is read by pandas and numpy as the inner format.
-_COMPRESSION = frozenset(".gz .bz2 .xz .zst".split())
+_COMPRESSION = frozenset([".gz", ".bz2", ".xz", ".zst"])
 
 PLOT_MODULES = frozenset({"matplotlib", "pylab", "mpl_toolkits", "seaborn", "plotnine"})
 # Attributes that, in code importing pandas, mean pandas' own plotting API (DataFrame.plot & co).
@@ -120,10 +118,7 @@ def glob_match(path: str, pattern: str) -> bool:
     if rx.fullmatch(path):
         return True
     # A pattern naming a folder covers the files below it.
-    for i, c in enumerate(path):
-        if c == "/" and rx.fullmatch(path[:i]):
-            return True
-    return False
+    return any(c == "/" and rx.fullmatch(path[:i]) for i, c in enumerate(path))
 
 
 def _any_match(path: str, patterns: Iterable[str]) -> bool:
@@ -250,58 +245,17 @@ def code_draws(code: str | bytes) -> bool:
     return bool(_FALLBACK_IMPORT.search(text))
 
 
-def _raw_cells(raw: bytes) -> list[str] | None:
-    try:
-        nb = json.loads(raw)
-    except (ValueError, RecursionError):
-        return None
-    if not isinstance(nb, dict):
-        return None
-    cells: Any = nb.get("cells")
-    if cells is None and isinstance(nb.get("worksheets"), list) and nb["worksheets"]:
-        first = nb["worksheets"][0]  # nbformat 3 keeps cells in worksheets, source under "input"
-        cells = first.get("cells") if isinstance(first, dict) else None
-    if not isinstance(cells, list):
-        return None
-    out: list[str] = []
-    for cell in cells:
-        if not isinstance(cell, dict) or cell.get("cell_type") != "code":
-            continue
-        src = cell.get("source", cell.get("input", ""))
-        if isinstance(src, list):
-            src = "".join(s for s in src if isinstance(s, str))
-        if isinstance(src, str):
-            out.append(src)
-    return out
-
-
 def notebook_cells(raw: bytes) -> list[str] | None:
-    """The code cells of a notebook file as Python source, IPython magics and shell lines blanked.
-
-    Returns None when the file is not a readable notebook.  Blanking keeps line
-    numbers; a cell magic (``%%bash``) blanks its whole cell, since its body is
-    not Python.
-    """
-    cells = _raw_cells(raw)
-    return None if cells is None else [_blank_magics(c) for c in cells]
+    """The code cells of a notebook file as Python source (IPython lines blanked); None when unreadable."""
+    try:
+        return [python_source(c.source) for c in code_cells(raw)]
+    except NotebookError:
+        return None
 
 
-def _blank_magics(src: str) -> str:
-    lines = src.splitlines()
-    if lines and lines[0].lstrip().startswith("%%"):
-        return "\n" * (len(lines) - 1)
-    return "\n".join("" if line.lstrip().startswith(("%", "!")) else line for line in lines)
-
-
-_MPL_MAGIC = re.compile(r"^[ \t]*%(?:matplotlib|pylab)\b", re.M)
-
-
-def _notebook_draws(cells: list[str]) -> bool:
-    for cell in cells:
-        # %matplotlib inline / %pylab set up plotting without a Python import.
-        if _MPL_MAGIC.search(cell) or code_draws(_blank_magics(cell)):
-            return True
-    return False
+def _notebook_draws(cells: list[Cell]) -> bool:
+    # %matplotlib inline / %pylab set up plotting without a Python import
+    return any(MATPLOTLIB_MAGIC.search(c.source) or code_draws(python_source(c.source)) for c in cells)
 
 
 def _read(path: Path) -> bytes | None:
@@ -318,9 +272,10 @@ def _draws(path: Path) -> bool:
     if raw is None:
         return False
     if path.suffix == ".ipynb":
-        cells = _raw_cells(raw)
-        # A notebook that is not valid JSON is listed anyway: its run reports the damage.
-        return True if cells is None else _notebook_draws(cells)
+        try:
+            return _notebook_draws(code_cells(raw))
+        except NotebookError:
+            return True  # a notebook that cannot be read is listed anyway: its run reports the damage
     return code_draws(raw)
 
 
@@ -492,9 +447,9 @@ def choose_working_dir(root: Path, script: str, mode: str) -> str:
 
 __all__ = [
     "DATA_SUFFIXES",
-    "DiscoveryError",
     "FIGURE_SUFFIXES",
     "PLOT_MODULES",
+    "DiscoveryError",
     "choose_working_dir",
     "code_draws",
     "discover",

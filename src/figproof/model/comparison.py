@@ -5,22 +5,18 @@ The comparing itself (Pillow, file I/O) lives in :mod:`figproof.compare`; rules 
 
 from __future__ import annotations
 
+import typing
 from pathlib import Path
+from typing import Literal
 
 from figproof.model.records import Serialisable, model
 
 RASTER_SUFFIXES = frozenset({".png", ".jpg", ".jpeg", ".tif", ".tiff", ".gif", ".bmp", ".webp"})
 VECTOR_SUFFIXES = frozenset({".pdf", ".svg", ".eps", ".ps"})
-STATUSES = (
-    "same",
-    "drift",
-    "size-mismatch",
-    "missing-committed",
-    "missing-regenerated",
-    "unreadable-committed",
-    "unreadable-regenerated",
-    "too-large",
-)
+ComparisonStatus = Literal["same", "drift", "size-mismatch", "missing-committed", "missing-regenerated",
+                           "unreadable-committed", "unreadable-regenerated", "too-large"]
+FileKind = Literal["raster", "vector", "other"]
+STATUSES: tuple[ComparisonStatus, ...] = typing.get_args(ComparisonStatus)
 
 
 @model
@@ -35,8 +31,8 @@ class OutputComparison(Serialisable):
     """
 
     path: str
-    kind: str  # raster | vector | other
-    status: str  # one of STATUSES
+    kind: FileKind
+    status: ComparisonStatus
     rms: float | None = None
     differing_pixels: int | None = None
     total_pixels: int | None = None
@@ -51,7 +47,7 @@ class OutputComparison(Serialisable):
     diff_image: str | None = None
 
 
-def kind_of(path: str | Path) -> str:
+def kind_of(path: str | Path) -> FileKind:
     """Return ``"raster"``, ``"vector"`` or ``"other"`` from a file name's suffix."""
     suffix = Path(path).suffix.lower()
     if suffix in RASTER_SUFFIXES:

@@ -69,14 +69,6 @@ class RunContext:
     rerun_comparisons: Mapping[str, tuple[OutputComparison, ...]] = field(default_factory=_empty_mapping)
     running_version: str = ""
 
-    def nondeterministic(self) -> dict[str, tuple[str, ...]]:
-        """Output paths that differed between the two runs, by script path (empty without ``--twice``)."""
-        return {
-            script: tuple(sorted(c.path for c in found if c.status != "same"))
-            for script, found in sorted(self.rerun_comparisons.items())
-            if any(c.status != "same" for c in found)
-        }
-
     def written_by(self) -> dict[str, tuple[str, ...]]:
         """Repo-relative files each run saved or wrote, keyed by file, scripts in execution order."""
         out: dict[str, list[str]] = {}

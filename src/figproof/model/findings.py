@@ -2,12 +2,16 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+import typing
+from dataclasses import dataclass
+from typing import Literal
 
 from figproof.model.records import ScriptRun, Serialisable, Source, model
 
-SEVERITIES = ("error", "warning", "note")
-CONFIDENCES = ("certain", "likely", "possible")
+Severity = Literal["error", "warning", "note"]
+Confidence = Literal["certain", "likely", "possible"]
+SEVERITIES: tuple[Severity, ...] = typing.get_args(Severity)
+CONFIDENCES: tuple[Confidence, ...] = typing.get_args(Confidence)
 
 
 @model
@@ -23,8 +27,8 @@ class Hit(Serialisable):
     message: str
     source: Source | None = None
     axes: int | None = None
-    confidence: str | None = None
-    severity: str | None = None
+    confidence: Confidence | None = None
+    severity: Severity | None = None
     key: str = ""
 
 
@@ -33,8 +37,8 @@ class Finding(Serialisable):
     """One reported problem, located in the user's code."""
 
     rule: str
-    severity: str
-    confidence: str
+    severity: Severity
+    confidence: Confidence
     path: str
     line: int | None = None
     cell: int | None = None
@@ -71,5 +75,4 @@ class CheckResult:
     findings: tuple[Finding, ...]
     summary: Summary
     fail_on: str = "error"
-    artifacts: dict[str, str] = field(default_factory=dict)  # figure id or output path -> image path
     notes: tuple[str, ...] = ()

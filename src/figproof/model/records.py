@@ -21,7 +21,7 @@ import typing
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, ClassVar, TypeVar, dataclass_transform
+from typing import Any, ClassVar, Literal, TypeVar, dataclass_transform
 
 import numpy as np
 
@@ -139,6 +139,19 @@ class Serialisable:
         return _decode(cls, dict(data), store if store is not None else ArrayStore())
 
 
+# The closed vocabularies of the model (JSON carries them as plain strings).
+LineRole = Literal["data", "errorbar", "reference", "box", "violin"]  # reference: axhline/axvline
+Orientation = Literal["vertical", "horizontal"]  # vertical: bars and error bars extend along y
+ErrorBarOrigin = Literal["errorbar", "lines"]  # lines: seaborn draws its intervals as Line2D
+ColorMappedKind = Literal["image", "mesh", "scatter", "contour", "colorbar"]
+TextRole = Literal["title", "xlabel", "ylabel", "tick", "legend", "annotation", "text"]
+PatchKind = Literal["legend", "fill", "rectangle", "polygon", "other"]
+Projection = Literal["rectilinear", "polar", "3d", "other"]
+ErrorKind = Literal["exception", "timeout", "memory", "signal", "exit", "needs-input", "no-report"]
+FileAction = Literal["read", "write", "save", "network", "missing", "blocked-write"]
+RunStatus = Literal["ok", "failed", "timeout", "memory", "skipped"]
+WorkingDir = Literal["root", "script"]
+
 _T = TypeVar("_T")
 
 
@@ -222,7 +235,7 @@ class Line(Serialisable):
     markersize: float = 6.0
     zorder: float = 2.0
     label: str = ""
-    role: str = "data"  # data | errorbar | reference (axhline/axvline) | box | violin
+    role: LineRole = "data"
     source: Source | None = None
 
 
@@ -235,7 +248,7 @@ class BarSet(Serialisable):
     ``pandas``, ``seaborn``, ``rectangles``.
     """
 
-    orientation: str = "vertical"
+    orientation: Orientation = "vertical"
     positions: Array = _arr()
     widths: Array = _arr()
     bottoms: Array = _arr()
@@ -254,13 +267,13 @@ class BarSet(Serialisable):
 class ErrorBars(Serialisable):
     """Error bars: centre and both ends along the value axis, one per bar/point."""
 
-    orientation: str = "vertical"  # vertical: bars extend along y
+    orientation: Orientation = "vertical"
     positions: Array = _arr()
     centers: Array = _arr()
     lower: Array = _arr()
     upper: Array = _arr()
     color: RGBA = (0.0, 0.0, 0.0, 1.0)
-    origin: str = "errorbar"  # errorbar | lines (seaborn draws Line2D)
+    origin: ErrorBarOrigin = "errorbar"
     source: Source | None = None
 
 
@@ -268,7 +281,7 @@ class ErrorBars(Serialisable):
 class Box(Serialisable):
     """One box of a box plot along the value axis."""
 
-    orientation: str = "vertical"
+    orientation: Orientation = "vertical"
     position: float = 0.0
     median: float = float("nan")
     q1: float = float("nan")
@@ -285,7 +298,7 @@ class Box(Serialisable):
 class Violin(Serialisable):
     """One violin body: position and the value-axis extent of its density."""
 
-    orientation: str = "vertical"
+    orientation: Orientation = "vertical"
     position: float = 0.0
     low: float = float("nan")
     high: float = float("nan")
@@ -303,7 +316,7 @@ class ColorMapping(Serialisable):
     ``is_rgb`` marks images drawn without a colour map (RGB/RGBA arrays).
     """
 
-    kind: str  # image | mesh | scatter | contour | colorbar
+    kind: ColorMappedKind
     name: str = ""
     samples: Array = _arr()
     n_colors: int = 256
@@ -319,7 +332,7 @@ class Text(Serialisable):
     """A visible text: labels, titles, tick labels, annotations, legend texts."""
 
     text: str
-    role: str = "text"  # title | xlabel | ylabel | tick | legend | annotation | text
+    role: TextRole = "text"
     color: RGBA = (0.0, 0.0, 0.0, 1.0)
     background: RGBA | None = None  # bbox patch face colour when the text has one
     fontsize: float = 10.0
@@ -333,7 +346,7 @@ class Text(Serialisable):
 class Patch(Serialisable):
     """A filled shape other than a bar (legend frame, fill_between, polygons, rectangles)."""
 
-    kind: str  # legend | fill | rectangle | polygon | other
+    kind: PatchKind
     display_box: tuple[float, float, float, float] = (0.0, 0.0, 0.0, 0.0)
     facecolor: RGBA = (0.0, 0.0, 0.0, 0.0)
     edgecolor: RGBA = (0.0, 0.0, 0.0, 0.0)
@@ -362,7 +375,7 @@ class Axes(Serialisable):
 
     index: int
     display_box: tuple[float, float, float, float] = (0.0, 0.0, 1.0, 1.0)
-    projection: str = "rectilinear"  # rectilinear | polar | 3d | other
+    projection: Projection = "rectilinear"
     x: Axis = field(default_factory=Axis)
     y: Axis = field(default_factory=Axis)
     title: str = ""
@@ -443,7 +456,7 @@ class FigureModel(Serialisable):
 class ScriptError(Serialisable):
     """Why a script did not finish."""
 
-    kind: str  # exception | timeout | memory | signal | exit | needs-input | no-report
+    kind: ErrorKind
     type: str = ""
     message: str = ""
     source: Source | None = None
@@ -453,7 +466,7 @@ class ScriptError(Serialisable):
 class FileEvent(Serialisable):
     """A file (or network) access the child saw: what, where, and from which line."""
 
-    action: str  # read | write | save | network | missing | blocked-write
+    action: FileAction
     path: str  # repo-relative when inside the repo, else as given
     inside_repo: bool = True
     exists: bool = True
@@ -469,9 +482,9 @@ class ScriptRun(Serialisable):
     SCHEMA: ClassVar[int] = SCHEMA_VERSION
 
     path: str
-    status: str  # ok | failed | timeout | memory | skipped
+    status: RunStatus
     seconds: float = 0.0
-    working_dir: str = "root"  # root | script
+    working_dir: WorkingDir = "root"
     error: ScriptError | None = None
     figures: tuple[FigureModel, ...] = ()
     events: tuple[FileEvent, ...] = ()

@@ -35,11 +35,11 @@ from pathlib import Path
 from typing import Any
 
 from figproof.model.findings import Finding
+from figproof.notebook import NotebookError, code_cells
 
 DEFAULT_PATH = ".figproof-accepted.json"
 FILE_SCHEMA = 1
 DEFAULT_REASON = "accepted with `figproof accept` when the repo adopted figproof"
-FIRST_CELL = 1
 
 _DIRECTIVE = re.compile(r"#\s*figproof\s*:\s*(?P<body>.*)$", re.IGNORECASE)
 _USAGE = "`# figproof: allow <rule-id> -- <reason>`"
@@ -137,7 +137,7 @@ def parse_allow_comments(text: str, known_rules: Collection[str]) -> tuple[dict[
         if not m:
             continue
         body = m.group("body").strip()
-        verb, rest = (re.split(r"\s+", body, maxsplit=1) + [""])[:2]
+        verb, rest = ([*re.split(r"\s+", body, maxsplit=1), ""])[:2]
         if verb.lower() != "allow":
             problems.append(f"line {row}: unknown figproof directive '{body}' (expected {_USAGE})")
             continue
@@ -169,23 +169,16 @@ def notebook_allow_comments(
         Problems start ``"cell C, line N: "``; an unreadable notebook gives one problem and no allows.
     """
     try:
-        nb = json.loads(notebook_text)
-        cells = nb["cells"]
-        if not isinstance(cells, list):
-            raise TypeError("cells is not a list")
-    except (ValueError, KeyError, TypeError) as exc:
-        return {}, [f"cannot read the notebook for allow comments ({type(exc).__name__}: {exc})"]
+        cells = code_cells(notebook_text)
+    except NotebookError as exc:
+        return {}, [f"cannot read the notebook for allow comments ({exc})"]
     out: dict[str, dict[int, list[Allow]]] = {}
     problems: list[str] = []
-    for number, cell in enumerate(cells, start=FIRST_CELL):
-        if not isinstance(cell, dict) or cell.get("cell_type") != "code":
-            continue
-        source = cell.get("source", "")
-        text = "".join(source) if isinstance(source, list) else str(source)
-        allows, cell_problems = parse_allow_comments(text, known_rules)
+    for cell in cells:
+        allows, cell_problems = parse_allow_comments(cell.source, known_rules)
         if allows:
-            out[allow_key(path, number)] = allows
-        problems.extend(f"cell {number}, {p}" for p in cell_problems)
+            out[allow_key(path, cell.number)] = allows
+        problems.extend(f"cell {cell.number}, {p}" for p in cell_problems)
     return out, problems
 
 

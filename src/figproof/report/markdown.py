@@ -104,7 +104,7 @@ def render(result: CheckResult, *, images: Mapping[str, str] | None = None, timi
     open_ = [f for f in result.findings if f.accepted is None]
     accepted = [f for f in result.findings if f.accepted is not None]
     if open_:
-        lines += ["### Findings", ""] + _findings_table(open_, images) + [""]
+        lines += ["### Findings", "", *_findings_table(open_, images), ""]
     else:
         lines += ["No open findings.", ""]
     if accepted:
@@ -113,7 +113,7 @@ def render(result: CheckResult, *, images: Mapping[str, str] | None = None, timi
         lines += [f"| `{_cell(where(f))}` | {f.rule} | {_cell(f.accepted or '')} |" for f in accepted]
         lines += ["", "</details>", ""]
     if result.runs:
-        lines += ["### Scripts", ""] + _scripts_table(result.runs, timings) + [""]
+        lines += ["### Scripts", "", *_scripts_table(result.runs, timings), ""]
     if provenance is not None:
         lines += _provenance(provenance)
     notes = list(result.notes) + [f"`{r.path}`: {n}" for r in result.runs for n in r.notes]

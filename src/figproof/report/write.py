@@ -16,15 +16,15 @@ import shutil
 import sys
 import time
 from collections.abc import Callable
+from datetime import UTC
 from pathlib import Path
 from typing import Any, TextIO
 
 from figproof.model.findings import CheckResult, Finding, Summary
 from figproof.model.records import ScriptRun
 from figproof.pipeline import Checked
-from figproof.report import github, gitlab, sarif
+from figproof.report import github, gitlab, markdown, sarif
 from figproof.report import json as json_report
-from figproof.report import markdown
 
 
 def _write(path: Path, text: str) -> None:
@@ -79,13 +79,13 @@ def _link(image: Path, relative_to: Path | None) -> str:
 
 def check_date(root: Path) -> str | None:
     """The date a check reports: SOURCE_DATE_EPOCH when set, else the date of the checked commit."""
-    from datetime import datetime, timezone
+    from datetime import datetime
 
     from figproof.discover.gitrepo import head_date
 
     epoch = os.environ.get("SOURCE_DATE_EPOCH")
     if epoch and epoch.strip().isdigit():
-        return datetime.fromtimestamp(int(epoch), tz=timezone.utc).isoformat()
+        return datetime.fromtimestamp(int(epoch), tz=UTC).isoformat()
     return head_date(root)
 
 
@@ -106,8 +106,8 @@ def write_images(checked: Checked, folder: Path, relative_to: Path | None) -> di
     Figures with colour findings get a panel of simulated views (protan, deutan, tritan, and
     grayscale for gray findings).
     """
-    from figproof.run.execute import artifact_folder
     from figproof.report.images import panel_needed, write_cvd_panel
+    from figproof.run.execute import artifact_folder
 
     folder.mkdir(parents=True, exist_ok=True)
     by_figure: dict[str, set[str]] = {}
@@ -179,8 +179,8 @@ def progress_printer(*, quiet: bool, verbose: bool,
 
 def write_merged(texts: list[str], args: argparse.Namespace, names: list[str] | None = None) -> tuple[str, bool]:
     """Merge shard reports and write the requested outputs; return the markdown and the verdict."""
-    from figproof.rules import by_id
     from figproof.discover.shard import merge_reports
+    from figproof.rules import by_id
 
     merged = merge_reports(texts, names)
     result = result_from_json(merged)

@@ -29,9 +29,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from figproof.science import colour as cs
 from figproof.model.records import Axes, ColorMapping, FigureModel, Source
 from figproof.rules.base import Knobs
+from figproof.science import colour as cs
 
 # --------------------------------------------------------------------------
 # backgrounds and series

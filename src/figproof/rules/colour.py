@@ -12,10 +12,8 @@ from collections.abc import Iterator
 
 import numpy as np
 
-from figproof.science import colour as cs
 from figproof.model.findings import Hit
 from figproof.model.records import Axes, ColorMapping, FigureModel, Source, Text
-from figproof.rules.base import Knob, Knobs, rule
 from figproof.rules._colormaps import MapProblem, judge_cached, judge_colormap
 from figproof.rules._series import (
     Series,
@@ -29,6 +27,8 @@ from figproof.rules._series import (
     series_name,
     visible_colors,
 )
+from figproof.rules.base import Knob, Knobs, rule
+from figproof.science import colour as cs
 
 # --------------------------------------------------------------------------
 # colormap-not-uniform
@@ -523,7 +523,7 @@ def _mark_hits(ax: Axes, figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
         rgba = cs.as_rgba(colors)
         shown = cs.to_hex(cs.blend_over(np.nan_to_num(rgba[min(worst, rgba.shape[0] - 1)]), bg)[0]) \
             if rgba.shape[0] else "?"
-        if r.size == 1 or low.all() and np.ptp(r) == 0:
+        if r.size == 1 or (low.all() and np.ptp(r) == 0):
             verb = "has" if what == "line" else "have"
             msg = f"{name} in {shown} on {bg_hex} {verb} contrast {_floor2(float(r[worst]))}:1, below {limit:g}:1"
         else:
@@ -533,6 +533,6 @@ def _mark_hits(ax: Axes, figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
         yield Hit(message=msg, source=source, axes=ax.index, severity="warning", key=f"mark:{what}:{label}:{shown}")
 
 
-__all__ = ["MapProblem", "RULES", "Series", "axes_series", "judge_colormap", "palette_colors"]
+__all__ = ["RULES", "MapProblem", "Series", "axes_series", "judge_colormap", "palette_colors"]
 
 RULES = (colormap_not_uniform, colours_confusable_cvd, colours_confusable_gray, low_contrast)

@@ -14,17 +14,15 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from figproof.science.dip import dip_test
 from figproof.model.findings import Hit
 from figproof.model.records import Axes, Box, ErrorBars, FigureModel, Source, Violin
-from figproof.rules.base import Knob, Knobs, pct, rule
 from figproof.rules._observations import (
     Group,
     drawn_near,
     finite,
     fmt,
-    groups_centred,
     group_label,
+    groups_centred,
     half_width,
     matched,
     recorded_groups,
@@ -32,6 +30,8 @@ from figproof.rules._observations import (
     shown,
     where,
 )
+from figproof.rules.base import Knob, Knobs, pct, rule
+from figproof.science.dip import dip_test
 
 # The fewest distinct values that can show a lattice (two or three gaps fit a lattice by chance).
 _MIN_LATTICE_VALUES = 4
@@ -83,7 +83,7 @@ def _find_lattice(values: np.ndarray, knobs: Knobs) -> _Lattice | None:
             break
     else:
         return None
-    nodes = int(round(span / step))
+    nodes = round(span / step)
     step = span / nodes  # least-error step from the two ends
     if distinct.size / (nodes + 1) < knobs["min_occupancy"]:
         return None

@@ -14,10 +14,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from figproof.science.colour import blend_over, delta_e
 from figproof.model.findings import Hit
 from figproof.model.records import Axes, FigureModel, PointSet
 from figproof.rules.base import Knob, Knobs, counted, rule
+from figproof.science.colour import blend_over, delta_e
 
 HIDDEN_WARNING = 0.25
 HIDDEN_ERROR = 0.5

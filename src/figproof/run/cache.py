@@ -60,16 +60,15 @@ from pathlib import Path, PurePosixPath
 from typing import Any
 
 from figproof import __version__
-from figproof.run.execute import Options, Runner, Task, artifact_folder
-from figproof.hashing import file_sha256
 from figproof.discover.imports import local_imports, search_folders
+from figproof.hashing import file_sha256
 from figproof.model.records import ScriptRun, dump_run, load_run
+from figproof.run.execute import Options, Runner, Task, artifact_folder
 
 KEY_SCHEMA = 1
 RUNS = "runs"  # entries live here, one folder per script: key.json + artifact/
 KEY_FILE = "key.json"
 ARTIFACT = "artifact"
-HIT_NOTE = "result from the cache (nothing it depends on changed)"
 CACHED_ERRORS = frozenset({"exception", "exit", "needs-input"})  # deterministic failures
 STALE_TEMP_SECONDS = 3600.0  # temp folders older than this were left by an interrupted check
 _PACKAGES = (("numpy", "numpy"), ("pandas", "pandas"), ("matplotlib", "matplotlib"), ("pillow", "Pillow"))
@@ -254,8 +253,7 @@ class CachingRunner:
         self.cache_dir = Path(cache_dir)
         self.config_fingerprint = config_fingerprint
         self.environment = _digest(dict(environment if environment is not None else environment_key()))
-        self.hits = 0
-        self.misses = 0
+        self.answered: set[str] = set()  # scripts whose run came from the cache in this check
         self._hasher = _Hasher()
         self._lock = threading.Lock()
         self._prepared: str | None = None  # "" once the folder is usable, else why not
@@ -305,8 +303,8 @@ class CachingRunner:
             run = self._restore(entry, task, options)
             if run is not None:
                 with self._lock:
-                    self.hits += 1
-                return self._note(run, [HIT_NOTE])
+                    self.answered.add(task.script)
+                return run
             notes.append(f"result cache entry {_shown(entry, root)} was unreadable; ran the script and replaced it")
         # decided before the run, so an edit made while it runs cannot be stored against the old result
         # sys.path[0] is how figproof itself was started (its bin folder, or the cwd under -m), not the child's
@@ -314,8 +312,6 @@ class CachingRunner:
         imports = local_imports(root, task.script, folders)
         before = {p: self._hasher.sha256(root / p) for p in imports.files}
         run = self.inner().run(task, options)
-        with self._lock:
-            self.misses += 1
         if script_sha is None or not cacheable(run):
             return self._note(run, notes)
         deps = dependencies(run, root, options.network)
@@ -345,7 +341,7 @@ class CachingRunner:
         return replace(run, notes=run.notes + notes) if notes else run
 
     @staticmethod
-    def _read_key(entry: Path) -> dict[str, Any] | None | bool:
+    def _read_key(entry: Path) -> dict[str, Any] | bool | None:
         """The entry's key; None when there is no entry, False when it is corrupt."""
         path = entry / KEY_FILE
         try:
@@ -496,5 +492,5 @@ def prune(cache_dir: Path, keep_scripts: Iterable[str]) -> list[str]:
     return sorted(removed)
 
 
-__all__ = ["HIT_NOTE", "CachingRunner", "cacheable", "dependencies", "entry_name", "environment_key",
+__all__ = ["CachingRunner", "cacheable", "dependencies", "entry_name", "environment_key",
            "file_sha256", "prune", "recorded_dependencies", "run_settings"]

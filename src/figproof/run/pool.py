@@ -38,8 +38,17 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import IO
 
-from figproof.run.execute import GRACE_SECONDS, FreshInterpreter, Launch, Options, Runner, Task, child_env, run_contained
 from figproof.model.records import ScriptRun
+from figproof.run.execute import (
+    GRACE_SECONDS,
+    FreshInterpreter,
+    Launch,
+    Options,
+    Runner,
+    Task,
+    child_env,
+    run_contained,
+)
 
 START_TIMEOUT = 60.0  # seconds for the server to import its libraries
 FORK_TIMEOUT = 30.0  # seconds for the server to answer a run request with the child's pid

@@ -120,7 +120,7 @@ def blend_over(rgba: Any, background: Any = WHITE) -> np.ndarray:
 def to_hex(rgb: Any) -> str:
     """Format one sRGB1 colour as ``#rrggbb`` (alpha ignored)."""
     values = np.clip(np.asarray(rgb, dtype=float)[:3], 0.0, 1.0)
-    return "#" + "".join(f"{int(round(v * 255)):02x}" for v in values)
+    return "#" + "".join(f"{round(v * 255):02x}" for v in values)
 
 
 # --------------------------------------------------------------------------

@@ -1,5 +1,4 @@
 import matplotlib
-import numpy as np
 import pandas as pd
 
 matplotlib.use("Agg")
