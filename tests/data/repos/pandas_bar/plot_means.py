@@ -1,4 +1,5 @@
 import matplotlib
+import numpy as np
 import pandas as pd
 
 matplotlib.use("Agg")
