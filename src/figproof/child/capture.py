@@ -32,7 +32,7 @@ import sysconfig
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, NamedTuple
 
 import numpy as np
 
@@ -50,6 +50,44 @@ class NetworkRefused(PermissionError):
     """Raised inside the child when a script tries the network while it is off."""
 
 
+class RecordedCall(NamedTuple):
+    """A plotting call's raw arrays, recorded while the script runs (extract keeps those of live axes)."""
+
+    axes: Any
+    name: str
+    arrays: dict[str, np.ndarray]
+    source: Source | None
+
+
+class RecordedSample(NamedTuple):
+    """Raw observations a statistics helper or a point call received."""
+
+    values: np.ndarray
+    origin: str
+    source: Source | None
+
+
+class RecordedStats(NamedTuple):
+    """The statistics a box or violin plot drew from, with the artists it returned."""
+
+    axes: Any
+    stats: list[dict[str, Any]]
+    artists: dict[str, Any]
+    vertical: bool
+    source: Source | None
+
+
+class RecordedTable(NamedTuple):
+    """A table the script loaded: numeric columns, text columns as group codes."""
+
+    path: str
+    reader: str
+    columns: dict[str, np.ndarray]
+    groups: dict[str, np.ndarray]
+    truncated: bool
+    source: Source | None
+
+
 @dataclass
 class Recorder:
     """Mutable record of one script run, owned by the child process only."""
@@ -61,12 +99,11 @@ class Recorder:
     figures: list[Any] = field(default_factory=list)
     figure_sources: dict[int, Source | None] = field(default_factory=dict)
     outputs: dict[int, list[str]] = field(default_factory=dict)
-    calls: list[tuple[Any, str, dict[str, np.ndarray], Source | None]] = field(default_factory=list)
-    samples: list[tuple[np.ndarray, str, Source | None]] = field(default_factory=list)
-    boxplots: list[tuple[Any, list[dict[str, Any]], dict[str, Any], bool, Source | None]] = field(default_factory=list)
-    violins: list[tuple[Any, list[dict[str, Any]], dict[str, Any], bool, Source | None]] = field(default_factory=list)
-    tables: list[tuple[str, str, dict[str, np.ndarray], dict[str, np.ndarray], bool, Source | None]] = field(
-        default_factory=list)
+    calls: list[RecordedCall] = field(default_factory=list)
+    samples: list[RecordedSample] = field(default_factory=list)
+    boxplots: list[RecordedStats] = field(default_factory=list)
+    violins: list[RecordedStats] = field(default_factory=list)
+    tables: list[RecordedTable] = field(default_factory=list)
     events: list[FileEvent] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
     drawn: set[int] = field(default_factory=set)  # figures fully drawn by a savefig and unchanged since
@@ -332,8 +369,8 @@ def _wrap_loader(rec: Recorder, module: Any, name: str) -> None:
                 cols, groups, truncated = {}, {}, False
             if cols:
                 src, _ = rec.user_source(2)
-                rec.tables.append((info[0], f"{module.__name__.split('.')[0]}.{name}", cols, groups, truncated,
-                                   src))
+                rec.tables.append(RecordedTable(info[0], f"{module.__name__.split('.')[0]}.{name}", cols, groups,
+                                                truncated, src))
         return result
 
     loader._figproof = True  # type: ignore[attr-defined]
@@ -393,7 +430,7 @@ def _wrap_estimates(rec: Recorder, module: Any) -> None:
             if len(rec.samples) < MAX_ESTIMATE_SAMPLES:
                 values = _as_array(data[var])
                 if values is not None:
-                    rec.samples.append((values, "seaborn-estimate", rec.user_source(2)[0]))
+                    rec.samples.append(RecordedSample(values, "seaborn-estimate", rec.user_source(2)[0]))
         except Exception:  # noqa: BLE001 - recording must never break the user's script
             pass
         return result
@@ -626,7 +663,7 @@ def install_matplotlib_hooks(rec: Recorder) -> None:
             try:
                 # seaborn draws error bars and estimate lines with ax.plot: those are not observations
                 if not (lib == "seaborn" and method_name == "plot"):
-                    rec.calls.append((self, method_name, _record_arrays(method_name, args, kwargs), src))
+                    rec.calls.append(RecordedCall(self, method_name, _record_arrays(method_name, args, kwargs), src))
                 if method_name == "hist":
                     _tag_hist(result)
             except Exception:  # noqa: BLE001
@@ -651,7 +688,7 @@ def install_matplotlib_hooks(rec: Recorder) -> None:
                 positions = range(1, len(stats) + 1)
             for s, p in zip(stats, positions, strict=False):
                 s["_position"] = float(p)
-            rec.boxplots.append((self, stats, result, vertical, rec.user_source(2)[0]))
+            rec.boxplots.append(RecordedStats(self, stats, result, vertical, rec.user_source(2)[0]))
         except Exception:  # noqa: BLE001
             pass
         return result
@@ -669,7 +706,7 @@ def install_matplotlib_hooks(rec: Recorder) -> None:
                 positions = range(1, len(stats) + 1)
             for s, p in zip(stats, positions, strict=False):
                 s["_position"] = float(p)
-            rec.violins.append((self, stats, result, _is_vertical(kwargs), rec.user_source(2)[0]))
+            rec.violins.append(RecordedStats(self, stats, result, _is_vertical(kwargs), rec.user_source(2)[0]))
         except Exception:  # noqa: BLE001
             pass
         return result
@@ -684,7 +721,7 @@ def install_matplotlib_hooks(rec: Recorder) -> None:
             result = real(X, *args, **kwargs)
             src, _ = rec.user_source(2)
             for g in _groups(X):
-                rec.samples.append((g, origin, src))
+                rec.samples.append(RecordedSample(g, origin, src))
             return result
 
         setattr(matplotlib.cbook, name, helper)

@@ -563,16 +563,16 @@ def extract_figure(fig: Figure, number: int, rec: Recorder, folder: Path | None,
         # fast compression: renders are scratch files for the image panels, not deliverables
         Image.fromarray(np.asarray(canvas.buffer_rgba())).save(render_path, compress_level=1)
         render = render_path.name
-    all_samples = [Sample(values=v, origin=o, source=s) for v, o, s in rec.samples]
+    all_samples = [Sample(values=s.values, origin=s.origin, source=s.source) for s in rec.samples]
     axes_list = [ax for ax in fig.get_axes()]
     used: set[int] = set()
     models = [_AxesExtractor(ax, i, rec, renderer, used).build(all_samples) for i, ax in enumerate(axes_list)]
     models, samples = _reindex_samples(models, all_samples)
     index_of = {id(ax): i for i, ax in enumerate(axes_list)}
-    calls = tuple(PlotCall(name=name, axes=index_of[id(ax)], arrays=arrays, source=src)
-                  for ax, name, arrays, src in rec.calls if id(ax) in index_of)
-    tables = tuple(LoadedTable(path=p, reader=r, columns=c, groups=g, truncated=t, source=s)
-                   for p, r, c, g, t, s in rec.tables)
+    calls = tuple(PlotCall(name=c.name, axes=index_of[id(c.axes)], arrays=c.arrays, source=c.source)
+                  for c in rec.calls if id(c.axes) in index_of)
+    tables = tuple(LoadedTable(path=t.path, reader=t.reader, columns=t.columns, groups=t.groups,
+                               truncated=t.truncated, source=t.source) for t in rec.tables)
     fig_texts = []
     extractor = _AxesExtractor(axes_list[0], 0, rec, renderer) if axes_list else None
     if extractor is not None:
