@@ -2,7 +2,7 @@
 
 The parent (:mod:`figproof.run.execute`) writes a JSON spec, starts this module in
 a new session with stdout/stderr sent to files and stdin closed, and reads
-back ``run.json`` (plus .npy arrays) from the spec's output folder.  Events
+back ``run.json`` (plus its arrays in one ``arrays.npz``) from the spec's output folder.  Events
 (files opened, figures saved) are appended to ``events.jsonl`` as they happen,
 so the parent still learns them when the script kills the process.
 """

@@ -32,9 +32,9 @@ class Rule:
     """A check with its id, documentation, defaults and worked Bad/Good examples.
 
     ``scope`` is ``"figure"`` (``check(figure, knobs)``) or ``"run"``
-    (``check(run, repo, knobs)``).  ``bad`` and ``good`` are complete figure
-    scripts: the test suite runs them through the child process and requires
-    that ``bad`` raises the rule and ``good`` does not.
+    (``check(run, context, knobs)``, with the run context).  ``bad`` and ``good``
+    are complete figure scripts: the test suite runs them through the child
+    process and requires that ``bad`` raises the rule and ``good`` does not.
     """
 
     id: str
