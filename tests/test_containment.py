@@ -230,7 +230,8 @@ def test_every_script_has_a_result_and_the_honest_one_passes(quick: Batch) -> No
     mode = "fresh-interpreter" if quick.mode == "fresh" else "warm-pool"
     for run in quick.runs.values():
         # every run says which isolation was in force, also the ones killed before they could report
-        assert {"repo-copy", "memory-cap", "network-off", mode} <= set(run.isolation), run.path
+        assert {"memory-cap", "network-off", mode} <= set(run.isolation), run.path
+        assert {"repo-copy", "repo-reflink", "repo-overlay"} & set(run.isolation), run.path
 
 
 def test_infinite_loop_times_out_and_its_group_is_killed(quick: Batch) -> None:

@@ -87,7 +87,8 @@ def test_both_runners_give_identical_models_and_renders(tmp_path: Path) -> None:
     assert fresh.status == warm.status == "ok"
     assert "fresh-interpreter" in fresh.isolation and "warm-pool" in warm.isolation
     for run in (fresh, warm):
-        assert {"repo-copy", "memory-cap", "network-off"} <= set(run.isolation)
+        assert {"memory-cap", "network-off"} <= set(run.isolation)
+        assert {"repo-copy", "repo-reflink", "repo-overlay"} & set(run.isolation)  # the repo view it ran on
 
     def comparable(folder: Path) -> dict[str, object]:
         data = json.loads((folder / "run.json").read_text())

@@ -26,6 +26,9 @@ class ExitCode(enum.IntEnum):
     FAILED = 1  # a finding crossed the fail-on threshold
     USAGE = 2  # bad command line, config or path
     INTERNAL = 3  # a bug in figproof: please report it with the traceback
+    ENVIRONMENT = 4  # the machine lacks room, a writable temp folder, open files or processes
+    INTERRUPTED = 130  # stopped by SIGINT (Ctrl-C): 128 + 2, as shells report it
+    TERMINATED = 143  # stopped by SIGTERM (a cancelled CI job, `timeout`): 128 + 15
 
 
 class UsageError(Exception):
@@ -108,21 +111,40 @@ def main(argv: Sequence[str] | None = None) -> int:
     if args.command is None:
         parser.print_help()
         return ExitCode.USAGE
+    from figproof.interrupt import Interrupted, stop_on_signals
+    from figproof.run.resources import EnvironmentProblem
+
     try:
         commands = {"check": cmd_check, "demo": cmd_demo, "rules": cmd_rules, "explain": cmd_explain,
                     "accept": cmd_accept, "merge": cmd_merge}
-        return commands[args.command](args)
+        with stop_on_signals():
+            try:
+                return commands[args.command](args)
+            except (Interrupted, KeyboardInterrupt) as exc:
+                return _stopped(exc)
     except UsageError as exc:
         print(f"figproof: {exc}", file=sys.stderr)
         return ExitCode.USAGE
-    except KeyboardInterrupt:
-        print("figproof: interrupted", file=sys.stderr)
-        return ExitCode.INTERNAL
+    except EnvironmentProblem as exc:
+        print(f"figproof: {exc}", file=sys.stderr)
+        return ExitCode.ENVIRONMENT
     except Exception:  # noqa: BLE001 - the one place that turns a figproof bug into exit code 3
         traceback.print_exc()
         print("figproof: internal error (a bug in figproof); please report it with the traceback above",
               file=sys.stderr)
         return ExitCode.INTERNAL
+
+
+def _stopped(exc: BaseException) -> int:
+    """After a signal: remove what this process still owns in the temp folder and say so in one line."""
+    from figproof.interrupt import Interrupted
+    from figproof.run.scratch import sweep_stale
+
+    sweep_stale(also_mine=True)  # anything a clean-up step missed (interrupted between making and recording)
+    name = exc.name if isinstance(exc, Interrupted) else "SIGINT"
+    print(f"\nfigproof: stopped by {name}; its child processes were ended and its temporary folders removed; "
+          f"no report was written", file=sys.stderr)
+    return exc.exit_code if isinstance(exc, Interrupted) else ExitCode.INTERRUPTED
 
 
 def cmd_rules(args: argparse.Namespace) -> int:

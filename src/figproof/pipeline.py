@@ -7,7 +7,6 @@ The reporters in :mod:`figproof.report` render the :class:`CheckResult`;
 from __future__ import annotations
 
 import functools
-import tempfile
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, replace
@@ -34,6 +33,7 @@ from figproof.policy.verdict import summarise
 from figproof.run.cache import CachingRunner, prune, recorded_dependencies
 from figproof.run.execute import Options, Runner, Task, execute_all
 from figproof.run.pool import default_runner
+from figproof.run.scratch import make_scratch, remove_tree, sweep_stale
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -124,11 +124,24 @@ def check(path: Path, options: CheckOptions | None = None, *, runner: Runner | N
     ------
     figproof.config.ConfigError, figproof.discover.inventory.DiscoveryError, figproof.policy.accept.AcceptedFileError
         For configuration, discovery and accepted-file problems (the CLI turns them into exit code 2).
+    figproof.run.resources.EnvironmentProblem
+        When the machine lacks room, permissions, open files or processes (exit code 4).
     """
     options = options or CheckOptions()
     config = load_config(path, rules=rules.by_id())
     inventory = discover(config)
-    artifacts = options.artifacts or Path(tempfile.mkdtemp(prefix="figproof-run-"))
+    sweep_stale()  # what killed checks left in the temp folder (only folders whose owner is gone)
+    artifacts = options.artifacts or make_scratch("figproof-run-")
+    try:
+        return _check(path, config, inventory, options, artifacts, runner, progress)
+    except BaseException:
+        if options.artifacts is None:  # a check that does not finish leaves no run records behind
+            remove_tree(artifacts)
+        raise
+
+
+def _check(path: Path, config: Config, inventory: Inventory, options: CheckOptions, artifacts: Path,
+           runner: Runner | None, progress: Callable[[ScriptRun, int, int], None] | None) -> Checked:
     tasks = plan(config, inventory, select_scripts(config, inventory, options))
     exec_options = Options(root=config.root, artifacts=artifacts, timeout=config.timeout,
                            memory_limit=config.memory_limit, network=config.network,
@@ -166,7 +179,7 @@ def _runners(config: Config, options: CheckOptions, runner: Runner | None) -> It
     if options.cache:
         cache = CachingRunner(runner or default_runner, config.cache_path())
         with cache:
-            yield cache, _Lazy(cache.inner)
+            yield cache, _Lazy(cache.inner, cache.stop)
         return
     bare = runner or default_runner()
     try:
@@ -180,8 +193,9 @@ def _runners(config: Config, options: CheckOptions, runner: Runner | None) -> It
 class _Lazy:
     """A runner built on first use (so an all-cached check never starts the warm pool)."""
 
-    def __init__(self, make: Callable[[], Runner]) -> None:
+    def __init__(self, make: Callable[[], Runner], stop: Callable[[], None]) -> None:
         self._make = make
+        self.stop = stop  # stops the runner if it was built
 
     def run(self, task: Task, options: Options) -> ScriptRun:
         return self._make().run(task, options)

@@ -32,12 +32,42 @@ class Spec:
     mode: str = "fresh-interpreter"  # or "warm-pool": how the process was started
     protect: tuple[str, ...] = ()  # folders never written (the user's own repo), even inside the temp folder
     renders: bool = True  # write each figure's pixels (for image panels and --twice); costs a full draw
+    view: Any = None  # how the sandbox shows the repo: {"method": "copy" | "reflink" | "overlay", ...}
 
     @classmethod
     def read(cls, path: Path) -> Spec:
         data = json.loads(path.read_text(encoding="utf-8"))
         data["protect"] = tuple(data.get("protect", ()))
         return cls(**data)
+
+    @property
+    def view_method(self) -> str:
+        return str((self.view or {}).get("method", "copy"))
+
+
+ENVIRONMENT_EXIT = 75  # as figproof.run.execute.ENVIRONMENT_EXIT (not imported: the child starts light)
+ENVIRONMENT_MARK = "figproof-environment: "
+
+
+def enter_view(spec: Spec) -> None:
+    """Mount the overlay view of the repo when the sandbox is one (first thing: before threads, hooks or
+    any confinement that forbids mounting); a refusal ends the child with the machine's exit status."""
+    if spec.view_method != "overlay" or os.path.ismount(spec.view["merged"]):
+        return  # a copy, or already entered (the warm pool enters before it re-reads the working folder)
+    from figproof.child.view import enter_overlay
+
+    view = spec.view
+    launched = os.getcwd()
+    try:
+        enter_overlay(view["lower"], view["upper"], view["work"], view["merged"])
+    except OSError as exc:
+        sys.stderr.write(f"{ENVIRONMENT_MARK}could not mount the overlay view of the repo in {view['merged']}: "
+                         f"{exc}; set FIGPROOF_REPO_VIEW=copy to copy the repo instead\n")
+        sys.stderr.flush()
+        os._exit(ENVIRONMENT_EXIT)
+    os.chdir(spec.cwd)
+    if sys.path and sys.path[0] in (launched, ""):
+        sys.path[0] = spec.cwd  # as if started in the script's working folder, like a copy
 
 
 class _CappedStream:
@@ -161,9 +191,23 @@ def main(argv: list[str] | None = None) -> int:
     """Run one script under capture and write its run record."""
     argv = sys.argv[1:] if argv is None else argv
     spec = Spec.read(Path(argv[0]))
+    enter_view(spec)
+    try:
+        return _run(spec)
+    except OSError as exc:
+        if exc.errno not in (28, 122):  # ENOSPC, EDQUOT: the run record could not be written
+            raise
+        sys.__stderr__.write(f"{ENVIRONMENT_MARK}no space left to write the run record of {spec.script} in "
+                             f"{Path(spec.out).parent}; free some space or point TMPDIR at a folder with more "
+                             f"room\n")
+        sys.__stderr__.flush()
+        os._exit(ENVIRONMENT_EXIT)
+
+
+def _run(spec: Spec) -> int:
     out = Path(spec.out)
     started = time.perf_counter()
-    isolation = ["repo-copy"]
+    isolation = [f"repo-{spec.view_method}"]
     if limit_memory(spec.memory_limit):
         isolation.append("memory-cap")
     if not spec.network:

@@ -13,6 +13,7 @@ import select
 import signal
 import sys
 import threading
+from pathlib import Path
 from typing import Any
 
 PRELOAD = ("numpy", "pandas", "matplotlib", "matplotlib.pyplot", "matplotlib.backends.backend_agg", "PIL.Image",
@@ -306,9 +307,10 @@ def _run_child(req: dict[str, Any], rcfile: str) -> None:
     os.chdir(req["cwd"])
     # `python -m` puts the working folder first on sys.path; mimic the fresh interpreter
     sys.path[0] = req["cwd"]
-    _fresh_state(rcfile)
     from figproof.child import main as child
 
+    child.enter_view(child.Spec.read(Path(req["spec"])))  # an overlay moves the working folder onto the mount
+    _fresh_state(rcfile)
     child.main([req["spec"]])
 
 

@@ -490,7 +490,7 @@ class ScriptRun(Serialisable):
     events: tuple[FileEvent, ...] = ()
     stdout_tail: str = ""
     stderr_tail: str = ""
-    isolation: tuple[str, ...] = ()  # e.g. "repo-copy", "memory-cap", "network-off"
+    isolation: tuple[str, ...] = ()  # e.g. "repo-overlay" (or -reflink, -copy), "memory-cap", "network-off"
     notes: tuple[str, ...] = ()
     freetype: str = ""  # the FreeType version matplotlib drew text with in the child
 

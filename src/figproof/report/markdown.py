@@ -9,7 +9,9 @@ from figproof.model.findings import CheckResult, Finding
 from figproof.model.records import ScriptRun
 
 STEP_SUMMARY_LIMIT = 1024 * 1024  # GitHub rejects job summaries over 1 MiB
-_ISOLATION = {"repo-copy": "ran on a copy of the repo", "memory-cap": "memory cap", "network-off": "network off"}
+_ISOLATION = {"repo-overlay": "ran on an overlay of the read-only repo (nothing copied)",
+              "repo-reflink": "ran on copy-on-write clones of the repo", "repo-copy": "ran on a copy of the repo",
+              "memory-cap": "memory cap", "network-off": "network off"}
 
 
 def _cell(text: str) -> str:
@@ -39,7 +41,9 @@ def _threshold(result: CheckResult) -> str:
 
 
 def _isolation(runs: tuple[ScriptRun, ...]) -> str:
-    seen = [tag for tag in _ISOLATION if runs and all(tag in r.isolation for r in runs if r.isolation)]
+    # how the repo was shown: every method some run used; the other layers: only when every run had them
+    seen = [tag for tag in _ISOLATION if runs and (any if tag.startswith("repo-") else all)(
+        tag in r.isolation for r in runs if r.isolation)]
     return ", ".join(_ISOLATION[t] for t in seen) or "none recorded"
 
 

@@ -28,8 +28,28 @@ from figproof.report import json as json_report
 
 
 def _write(path: Path, text: str) -> None:
-    path.parent.mkdir(parents=True, exist_ok=True)
-    path.write_text(text, encoding="utf-8")
+    """Write a report whole or not at all: a temporary file in the same folder, then renamed over ``path``.
+
+    An interrupted or failed write leaves the previous report (or none), never half of one.
+    """
+    from figproof.run.resources import EnvironmentProblem, free_space, human_size, is_space_error
+
+    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        try:
+            tmp.write_text(text, encoding="utf-8")
+            os.replace(tmp, path)
+        finally:
+            if tmp.exists():
+                tmp.unlink()
+    except OSError as exc:
+        if is_space_error(exc):
+            free = free_space(path.parent)
+            room = f" ({human_size(free)} free, {human_size(len(text.encode()))} needed)" if free is not None else ""
+            raise EnvironmentProblem(f"no space left in {path.parent} to write the report {path.name}{room}; "
+                                     f"free some space or write the report elsewhere") from None
+        raise
 
 
 def step_summary_path() -> Path | None:

@@ -271,6 +271,12 @@ class CachingRunner:
                 self._inner = self._factory()
             return self._inner
 
+    def stop(self) -> None:
+        """Stop the inner runner's children if it was started (the check is interrupted)."""
+        stop = getattr(self._inner, "stop", None)
+        if callable(stop):
+            stop()
+
     def close(self) -> None:
         """Close the inner runner if it was started."""
         close = getattr(self._inner, "close", None)

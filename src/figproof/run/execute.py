@@ -16,6 +16,17 @@ Containment (best effort, not a security boundary):
 A :class:`Runner` runs one task.  :class:`FreshInterpreter` starts a new
 Python for every script; a warm pool of pre-imported workers can replace it
 without changing callers of :func:`execute_all`.
+
+Stopping: when the check is interrupted (a signal raises in the main thread
+while :func:`execute_all` waits), the runner's ``stop()`` kills every child's
+process group at once, no further task starts, and the sandboxes are deleted
+before the interruption goes on up to the command line.  A runner that is
+stopped refuses new tasks with :class:`Stopped`.
+
+The machine's trouble is not the script's: a sandbox that cannot be made, a
+child that cannot be started, or a run lost while the temp folder is full
+raises :class:`figproof.run.resources.EnvironmentProblem`, which ends the check
+with one line instead of a finding against the script.
 """
 
 from __future__ import annotations
@@ -36,7 +47,17 @@ from pathlib import Path
 from typing import Protocol
 
 from figproof.model.records import FileEvent, ScriptError, ScriptRun, load_run
+from figproof.run.resources import EnvironmentProblem, describe_os_error, free_space, human_size, is_environment_error
 from figproof.run.sandbox import SandboxPool
+
+ENVIRONMENT_EXIT = 75  # the child's exit status when the machine, not the script, stopped it (EX_TEMPFAIL)
+ENVIRONMENT_MARK = "figproof-environment: "  # the child's stderr line that says what was missing
+FULL_BYTES = 1 << 20  # a lost run with less room than this left in the temp folder was lost to a full disk
+_SPACE_MESSAGE = ("[Errno 28]", "[Errno 122]")  # ENOSPC, EDQUOT as a script's OSError reads
+
+
+class Stopped(RuntimeError):
+    """The runner was stopped (the check is being interrupted); no new child is started."""
 
 GRACE_SECONDS = 1.0
 TAIL_BYTES = 4000
@@ -167,27 +188,40 @@ def run_contained(task: Task, options: Options, launch: LaunchFn, mode: str) -> 
     containment is the same whichever starts the process.
     """
     out = options.artifacts / _slug(task.script)
-    if out.exists():
-        shutil.rmtree(out)
-    out.mkdir(parents=True)
+    try:
+        if out.exists():
+            shutil.rmtree(out)
+        out.mkdir(parents=True)
+    except OSError as exc:
+        if is_environment_error(exc):
+            raise EnvironmentProblem(describe_os_error(exc, options.artifacts, f"keep the run of {task.script}"))
+        raise
     pool = options.sandboxes or SandboxPool(options.root, options.skip_copy, reuse=False)
     box = pool.acquire()
     try:
         sandbox = box.repo
-        mplconfig = Path(tempfile.mkdtemp(prefix="mplconfig-", dir=box.base))  # never shared between scripts
-        cwd = sandbox if task.working_dir == "root" else (sandbox / task.script).parent
-        spec = {"script": task.script, "sandbox": str(sandbox), "cwd": str(cwd), "out": str(out),
-                "memory_limit": options.memory_limit, "network": options.network, "mode": mode,
-                "protect": [str(options.root.resolve())], "renders": options.renders}
-        spec_path = box.base / "spec.json"
-        spec_path.write_text(json.dumps(spec), encoding="utf-8")
-        job = Launch(spec=spec_path, cwd=cwd, env=child_env(mplconfig), stdout=out / "stdout.txt",
-                     stderr=out / "stderr.txt")
+        try:
+            mplconfig = Path(tempfile.mkdtemp(prefix="mplconfig-", dir=box.base))  # never shared between scripts
+            cwd = sandbox if task.working_dir == "root" else (sandbox / task.script).parent
+            spec = {"script": task.script, "sandbox": str(sandbox), "cwd": str(cwd), "out": str(out),
+                    "memory_limit": options.memory_limit, "network": options.network, "mode": mode,
+                    "protect": [str(options.root.resolve())], "renders": options.renders,
+                    "view": box.view_spec()}
+            spec_path = box.base / "spec.json"
+            spec_path.write_text(json.dumps(spec), encoding="utf-8")
+        except OSError as exc:
+            if is_environment_error(exc):
+                raise EnvironmentProblem(describe_os_error(exc, box.base.parent, f"prepare {task.script}"))
+            raise
+        # an overlay's folders exist only inside the child once it has mounted it: start beside the mount point
+        job = Launch(spec=spec_path, cwd=cwd if box.method != "overlay" else box.launch_folder,
+                     env=child_env(mplconfig), stdout=out / "stdout.txt", stderr=out / "stderr.txt")
         started = time.perf_counter()
         returncode, timed_out = launch(job, options.timeout)
         seconds = time.perf_counter() - started
         run = _collect(task, out, returncode, timed_out, seconds, options.timeout)
-        _keep_outputs(run, sandbox, out / "regenerated")
+        _blame_environment(run, returncode, out, box.base)
+        _keep_outputs(run, box.outputs, out / "regenerated")
     finally:
         pool.release(box)
         if options.sandboxes is None:
@@ -202,22 +236,57 @@ class FreshInterpreter:
 
     def __init__(self, python: str | None = None) -> None:
         self.python = python or sys.executable
+        self._lock = threading.Lock()
+        self._live: set[subprocess.Popen[bytes]] = set()
+        self._stopped = False
 
     def run(self, task: Task, options: Options) -> ScriptRun:
         """Run one script in a new interpreter."""
+        if self._stopped:
+            raise Stopped("the check is stopping")
         return run_contained(task, options, self._launch, self.name)
+
+    def stop(self) -> None:
+        """Kill every running child's process group now and start no more (the check is interrupted)."""
+        with self._lock:
+            self._stopped = True
+            live = list(self._live)
+        for proc in live:
+            try:
+                os.killpg(proc.pid, signal.SIGKILL)
+            except (ProcessLookupError, PermissionError):
+                pass
 
     def _launch(self, job: Launch, timeout: float) -> tuple[int | None, bool]:
         timed_out = False
-        with open(job.stdout, "wb") as so, open(job.stderr, "wb") as se:
-            proc = subprocess.Popen([self.python, "-m", "figproof.child.main", str(job.spec)], cwd=str(job.cwd),
-                                    stdin=subprocess.DEVNULL, stdout=so, stderr=se, env=job.env,
-                                    start_new_session=True)
+        try:
+            so, se = open(job.stdout, "wb"), open(job.stderr, "wb")
+        except OSError as exc:
+            if is_environment_error(exc):
+                raise EnvironmentProblem(describe_os_error(exc, job.stdout.parent, "keep a script's output"))
+            raise
+        with so, se:
+            with self._lock:
+                if self._stopped:
+                    raise Stopped("the check is stopping")
+                try:
+                    proc = subprocess.Popen([self.python, "-m", "figproof.child.main", str(job.spec)],
+                                            cwd=str(job.cwd), stdin=subprocess.DEVNULL, stdout=so, stderr=se,
+                                            env=job.env, start_new_session=True)
+                except OSError as exc:
+                    if is_environment_error(exc):
+                        raise EnvironmentProblem(describe_os_error(exc, job.cwd, "start a process for a script"))
+                    raise
+                self._live.add(proc)
             try:
-                proc.wait(timeout=timeout)
-            except subprocess.TimeoutExpired:
-                timed_out = True
-            kill_group(proc)
+                try:
+                    proc.wait(timeout=timeout)
+                except subprocess.TimeoutExpired:
+                    timed_out = True
+                kill_group(proc)
+            finally:
+                with self._lock:
+                    self._live.discard(proc)
         return proc.returncode, timed_out
 
 
@@ -243,6 +312,31 @@ def _collect(task: Task, out: Path, returncode: int | None, timed_out: bool, sec
                    stderr_tail=stderr)
 
 
+def _blame_environment(run: ScriptRun, returncode: int | None, out: Path, base: Path) -> None:
+    """Raise EnvironmentProblem when the machine, not the script, ended the run (a full temp folder)."""
+    error = run.error
+    if error is None:
+        return
+    lost = error.kind == "no-report" or (error.kind == "signal" and returncode == -signal.SIGKILL)
+    if error.kind == "no-report" and returncode == ENVIRONMENT_EXIT:
+        said = next((ln[len(ENVIRONMENT_MARK):] for ln in run.stderr_tail.splitlines()
+                     if ln.startswith(ENVIRONMENT_MARK)), "")
+        if said:
+            raise EnvironmentProblem(said)
+    if error.kind == "exception" and error.message.startswith(_SPACE_MESSAGE):
+        free = free_space(base)
+        room = f" ({human_size(free)} free)" if free is not None else ""
+        raise EnvironmentProblem(f"no space left in the temp folder {base.parent}{room}: {run.path} could not "
+                                 f"write its files; free some space or point TMPDIR at a folder with more room")
+    if lost:
+        for folder in (out, base):
+            free = free_space(folder)
+            if free is not None and free < FULL_BYTES:
+                raise EnvironmentProblem(f"no space left in the temp folder {base.parent} ({human_size(free)} "
+                                         f"free): the run of {run.path} was lost; free some space or point TMPDIR "
+                                         f"at a folder with more room")
+
+
 def _isolation(out: Path) -> tuple[str, ...]:
     """Isolation the child set up before the user's code ran (written early, so it survives a lost run)."""
     try:
@@ -266,7 +360,8 @@ def _lost_error(returncode: int | None, timed_out: bool, timeout: float, stderr:
 
 
 def _keep_outputs(run: ScriptRun, sandbox: Path, dest: Path) -> None:
-    """Copy regenerated figure files out of the sandbox before it is deleted."""
+    """Copy regenerated figure files out of the sandbox (``sandbox``: where its written files are) before it is
+    deleted."""
     for ev in run.events:
         if ev.action != "save" or not ev.inside_repo:
             continue
@@ -286,6 +381,12 @@ def artifact_folder(artifacts: Path, script: str) -> Path:
     return artifacts / _slug(script)
 
 
+def view_method() -> str:
+    """How sandboxes show the repo: ``FIGPROOF_REPO_VIEW`` (copy | reflink | overlay), else ``auto``."""
+    asked = os.environ.get("FIGPROOF_REPO_VIEW", "").strip().lower()
+    return asked if asked in ("copy", "reflink", "overlay") else "auto"
+
+
 def execute_all(tasks: Iterable[Task], options: Options, runner: Runner,
                 progress: Callable[[ScriptRun, int, int], None] | None = None) -> list[ScriptRun]:
     """Run every task (``options.jobs`` at a time); results in task order; one failure never stops the rest.
@@ -298,30 +399,61 @@ def execute_all(tasks: Iterable[Task], options: Options, runner: Runner,
     active = runner
     sandboxes = None
     if options.sandboxes is None:
-        sandboxes = SandboxPool(options.root, options.skip_copy, jobs=options.jobs)
+        sandboxes = SandboxPool(options.root, options.skip_copy, jobs=options.jobs, method=view_method())
         options = replace(options, sandboxes=sandboxes)
     results: list[ScriptRun | None] = [None] * len(tasks)
     done = 0
     lock = threading.Lock()
+    halt = threading.Event()  # set when the check stops: tasks not yet started are skipped
+    trouble: list[EnvironmentProblem] = []
 
     def one(i: int) -> None:
         nonlocal done
         task = tasks[i]
+        if halt.is_set():
+            return
         try:
             run = active.run(task, options)
+        except EnvironmentProblem as exc:  # the machine's trouble ends the check, it is no script's finding
+            with lock:
+                trouble.append(exc)
+            halt.set()
+            _stop(active)
+            return
+        except Stopped:
+            return
         except Exception as exc:  # noqa: BLE001 - a broken sandbox for one script must not stop the others
             run = ScriptRun(path=task.script, status="failed", working_dir=task.working_dir,
                             error=ScriptError(kind="no-report", type=type(exc).__name__, message=str(exc)[:300]))
+        if halt.is_set():
+            return  # stopped while it ran: its run says nothing about the script
         with lock:
             results[i] = run
             done += 1
             if progress is not None:
                 progress(run, done, len(tasks))
 
+    executor = ThreadPoolExecutor(max_workers=max(1, options.jobs))
     try:
-        with ThreadPoolExecutor(max_workers=max(1, options.jobs)) as pool:
-            list(pool.map(one, range(len(tasks))))
+        futures = [executor.submit(one, i) for i in range(len(tasks))]
+        for future in futures:
+            future.result()
+    except BaseException:
+        # interrupted (a signal raised here, in the main thread): kill the children so the workers return
+        halt.set()
+        _stop(active)
+        raise
     finally:
+        executor.shutdown(wait=True, cancel_futures=True)
         if sandboxes is not None:
             sandboxes.close()
+    if trouble:
+        raise trouble[0]
     return [r for r in results if r is not None]
+
+
+def _stop(runner: Runner) -> None:
+    """Stop ``runner``'s children (runners without ``stop`` are left to finish)."""
+    stop = getattr(runner, "stop", None)
+    if callable(stop):
+        stop()

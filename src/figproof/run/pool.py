@@ -28,11 +28,9 @@ from __future__ import annotations
 
 import json
 import os
-import shutil
 import signal
 import subprocess
 import sys
-import tempfile
 import threading
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -45,10 +43,13 @@ from figproof.run.execute import (
     Launch,
     Options,
     Runner,
+    Stopped,
     Task,
     child_env,
     run_contained,
 )
+from figproof.run.resources import EnvironmentProblem
+from figproof.run.scratch import make_scratch, remove_tree
 
 START_TIMEOUT = 60.0  # seconds for the server to import its libraries
 FORK_TIMEOUT = 30.0  # seconds for the server to answer a run request with the child's pid
@@ -96,6 +97,7 @@ class WarmPool:
         self._reader: threading.Thread | None = None
         self._start_lock = threading.Lock()
         self._gave_up = False  # the server could not start once: do not retry for every script
+        self._stopped = False
         self._fallback = FreshInterpreter(self.python)
 
     # ---- life cycle ------------------------------------------------------
@@ -120,7 +122,10 @@ class WarmPool:
             return True
 
     def _spawn(self) -> bool:
-        self._tmp = Path(tempfile.mkdtemp(prefix="figproof-pool-"))
+        try:
+            self._tmp = make_scratch("figproof-pool-")
+        except EnvironmentProblem:
+            return False  # the fresh interpreter then meets the same trouble and says so
         mplconfig = self._tmp / "mplconfig"
         mplconfig.mkdir()
         self._ready = threading.Event()
@@ -171,13 +176,29 @@ class WarmPool:
 
     def _cleanup(self) -> None:
         if self._tmp is not None:
-            shutil.rmtree(self._tmp, ignore_errors=True)
+            remove_tree(self._tmp)
             self._tmp = None
+
+    def stop(self) -> None:
+        """Kill every running child's process group now and start no more (the check is interrupted);
+        :meth:`close` then stops the server."""
+        with self._lock:
+            self._stopped = True
+            pending = list(self._pending.values())
+        for item in pending:
+            if item.pid is not None:
+                try:
+                    os.killpg(item.pid, signal.SIGKILL)
+                except (ProcessLookupError, PermissionError):
+                    pass
+        self._fallback.stop()
 
     # ---- running ---------------------------------------------------------
 
     def run(self, task: Task, options: Options) -> ScriptRun:
         """Run one script in a forked child; in a fresh interpreter when the server is not (or no longer) up."""
+        if self._stopped:
+            raise Stopped("the check is stopping")
         if not self._alive and not self.start():
             return self._fallback.run(task, options)
         try:
@@ -218,6 +239,8 @@ class WarmPool:
             request = {"op": "run", "id": ident, "spec": str(job.spec), "cwd": str(job.cwd), "env": job.env,
                        "stdout": str(job.stdout), "stderr": str(job.stderr)}
             proc = self._proc
+            if self._stopped:
+                raise Stopped("the check is stopping")
             if proc is None or proc.stdin is None or not self._alive:
                 raise PoolLost("the worker pool is not running")
             self._pending[ident] = pending

@@ -19,6 +19,12 @@ A restore that fails for any reason (a permission the script removed, a repo fil
 deletes the copy; the next script gets a fresh one.  Processes that escaped the script's process group (see
 docs/safety.md) could still change a copy after the check; like the rest of the isolation this is best
 effort, not a security boundary.
+
+Where the platform allows, a pool gives each script a view of the repo instead of a copy (see
+:mod:`figproof.run.view`): an overlay whose upper layer is thrown away after each script, or copy-on-write clones.
+Every sandbox folder is made by :func:`figproof.run.scratch.make_scratch`, so one left by a killed check is swept
+by the next.  A full temp folder raises :class:`figproof.run.resources.EnvironmentProblem` naming the folder, the
+repo's size and the free space: never a failure of the script.
 """
 
 from __future__ import annotations
@@ -27,12 +33,15 @@ import os
 import shutil
 import stat
 import sys
-import tempfile
 import threading
 import time
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
+
+from figproof.run.resources import EnvironmentProblem, describe_os_error, free_space, human_size, is_environment_error
+from figproof.run.scratch import MARKER, make_scratch, remove_tree
+from figproof.run.view import Cloner, hidden_entries, make_upper, probe_overlay
 
 COPY_IGNORE = (".git", ".hg", ".svn", ".venv", "venv", "__pycache__", "node_modules", ".figproof-cache",
                ".pytest_cache", ".mypy_cache", ".ipynb_checkpoints", ".tox", ".nox", "*.egg-info")
@@ -43,9 +52,16 @@ Stamp = tuple[int, int, int, int, int, int]  # file type, inode, size, mode, mti
 Snapshot = dict[str, Stamp]  # repo-relative POSIX path -> stamp
 
 
-def copy_repo(root: Path, dest: Path, skip: Sequence[str] = (), *, top: Path | None = None) -> None:
+def copy_repo(root: Path, dest: Path, skip: Sequence[str] = (), *, top: Path | None = None,
+              copier: Callable[[str, str], object] = shutil.copy2) -> None:
     """Copy the repo (or one folder of it, with ``top`` the repo) to ``dest`` without VCS folders, virtual
-    environments, caches and the repo-relative folders in ``skip``."""
+    environments, caches and the repo-relative folders in ``skip``; ``copier`` copies one file."""
+    shutil.copytree(root, dest, ignore=copy_ignore(root, skip, top=top), symlinks=True, copy_function=copier)
+
+
+def copy_ignore(root: Path, skip: Sequence[str] = (), *, top: Path | None = None
+                ) -> Callable[[str, list[str]], set[str]]:
+    """The ignore function of :func:`copy_repo` (names in a folder a copy leaves out)."""
     skipped = {((top or root) / s).resolve() for s in skip}
 
     def ignore(folder: str, names: list[str]) -> set[str]:
@@ -57,7 +73,33 @@ def copy_repo(root: Path, dest: Path, skip: Sequence[str] = (), *, top: Path | N
                 out.add(n)
         return out
 
-    shutil.copytree(root, dest, ignore=ignore, symlinks=True)
+    return ignore
+
+
+def repo_size(root: Path, skip: Sequence[str] = ()) -> int:
+    """Bytes a full copy of the repo takes (regular files only, as :func:`copy_repo` copies them)."""
+    ignore = copy_ignore(root, skip)
+    total = 0
+    pending = [root]
+    while pending:
+        folder = pending.pop()
+        try:
+            names = os.listdir(folder)
+        except OSError:
+            continue
+        left_out = ignore(str(folder), names)
+        for name in names:
+            if name in left_out:
+                continue
+            try:
+                st = os.lstat(folder / name)
+            except OSError:
+                continue
+            if stat.S_ISDIR(st.st_mode):
+                pending.append(folder / name)
+            elif stat.S_ISREG(st.st_mode):
+                total += st.st_size
+    return total
 
 
 def _now_ns() -> int:
@@ -156,21 +198,6 @@ def _put_back(root: Path, path: str, dest: Path, stamp: Stamp, skip: Sequence[st
         shutil.copy2(src, dest, follow_symlinks=False)
 
 
-def remove_tree(path: Path) -> None:
-    """Delete a folder even when the script took away permissions inside it; never raises."""
-    def allow(func: Callable[..., object], name: str, _exc: object) -> None:
-        try:
-            os.chmod(os.path.dirname(name), 0o700)
-            if os.path.isdir(name) and not os.path.islink(name):
-                os.chmod(name, 0o700)
-            func(name)
-        except OSError:
-            pass
-
-    if os.path.lexists(path):
-        shutil.rmtree(path, onerror=allow)
-
-
 @dataclass(eq=False)
 class Sandbox:
     """One private folder: the repo copy (``repo``) and room beside it for per-run scratch files."""
@@ -178,32 +205,70 @@ class Sandbox:
     base: Path
     snapshot: Snapshot = field(default_factory=dict)
     fence: int = 0  # newest time stamp in the snapshot; hand out only when the clock has passed it
+    method: str = "copy"  # how ``repo`` shows the repo: copy | reflink | overlay (see figproof.run.view)
+    lower: Path | None = None  # overlay: the repo, read-only
 
     @property
     def repo(self) -> Path:
+        """Where the script sees the repo (for an overlay: the mount point, empty outside the child)."""
         return self.base / "repo"
+
+    @property
+    def upper(self) -> Path:
+        """The overlay's writable layer: what the script wrote, as the parent sees it."""
+        return self.base / "upper"
+
+    @property
+    def outputs(self) -> Path:
+        """Where the parent reads files the script wrote into the repo."""
+        return self.upper if self.method == "overlay" else self.repo
+
+    @property
+    def launch_folder(self) -> Path:
+        """A folder the child can start in (an overlay's folders exist only once the child has mounted it)."""
+        return self.base if self.method == "overlay" else self.repo
+
+    def view_spec(self) -> dict[str, str]:
+        """What the child needs to set up its view of the repo (the ``view`` of its spec)."""
+        if self.method != "overlay" or self.lower is None:
+            return {"method": self.method}
+        return {"method": "overlay", "lower": str(self.lower), "upper": str(self.upper),
+                "work": str(self.base / "work"), "merged": str(self.repo)}
 
 
 class SandboxPool:
-    """Copies of one repo for the scripts of one check; thread-safe; a context manager (deletes them).
+    """Views of one repo for the scripts of one check; thread-safe; a context manager (deletes them).
 
-    ``acquire`` returns a copy that matches the repo; ``release`` puts it back (restored) or deletes it.
-    ``skip`` are repo-relative folders left out of the copies; ``reuse=False`` makes a new copy every time.
+    ``acquire`` returns a sandbox that matches the repo; ``release`` puts it back (restored) or deletes it.
+    ``skip`` are repo-relative folders left out of the views; ``reuse=False`` makes a new copy every time.
+    ``method`` is ``copy``, ``reflink``, ``overlay``, or ``auto`` (the first of those the platform allows,
+    decided on the first ``acquire``; :attr:`method` then tells which).
     """
 
-    def __init__(self, root: Path, skip: Sequence[str] = (), *, jobs: int = 1, reuse: bool = True) -> None:
+    def __init__(self, root: Path, skip: Sequence[str] = (), *, jobs: int = 1, reuse: bool = True,
+                 method: str = "copy", python: str | None = None) -> None:
+        if method not in ("auto", "copy", "reflink", "overlay"):
+            raise ValueError(f"unknown repo view method {method!r}")
         self.root = root
         self.skip = tuple(skip)
-        self._limit = 2 * max(1, jobs)
+        self.method = method
+        self.jobs = max(1, jobs)
+        self._limit = 2 * self.jobs
         self._reuse = reuse
+        self._python = python
         self._lock = threading.Lock()
+        self._method_lock = threading.Lock()
         self._idle: list[Sandbox] = []
         self._count = 0
-        self.made = 0  # copies made, for benchmarks and tests
+        self._hidden: list[str] | None = None  # overlay: repo paths a copy would leave out
+        self._size: int | None = None  # bytes of a full copy (computed when needed)
+        self.made = 0  # sandboxes made, for benchmarks and tests
         self.restored = 0  # entries put back after scripts changed them
+        self.why_not_overlay = ""  # with method auto: why the overlay was not used
 
     def acquire(self) -> Sandbox:
-        """A copy of the repo no script has changed (made now, or restored after its last use)."""
+        """A sandbox no script has changed (made now, or restored after its last use)."""
+        self._decide()
         with self._lock:
             box = self._pick()
         if box is None:
@@ -213,6 +278,18 @@ class SandboxPool:
             time.sleep(wait / 1e9 + 1e-4)
             wait = box.fence - _now_ns()
         return box
+
+    def _decide(self) -> None:
+        """Resolve ``auto`` (once): the overlay when a probe mount works, else clones or copies."""
+        with self._method_lock:
+            if self.method != "auto":
+                return
+            probe = make_scratch()
+            try:
+                self.why_not_overlay = probe_overlay(self.root.resolve(), probe, self._python)
+            finally:
+                remove_tree(probe)
+            self.method = "overlay" if not self.why_not_overlay else "reflink"
 
     def _pick(self) -> Sandbox | None:
         if not self._idle:
@@ -228,24 +305,83 @@ class SandboxPool:
         return box
 
     def _new(self) -> Sandbox:
-        base = Path(tempfile.mkdtemp(prefix="figproof-"))
-        box = Sandbox(base=base)
         try:
-            copy_repo(self.root, box.repo, self.skip)
-            box.snapshot = scan(box.repo) if self._reuse else {}
-        except BaseException:
+            base = make_scratch()
+        except EnvironmentProblem:
+            with self._lock:
+                self._count -= 1
+            raise
+        box = Sandbox(base=base, method=self.method)
+        try:
+            if box.method == "overlay":
+                self._new_overlay(box)
+            else:
+                self._new_copy(box)
+        except BaseException as exc:
             remove_tree(base)
             with self._lock:
                 self._count -= 1
+            if isinstance(exc, Exception) and is_environment_error(exc):
+                raise self._no_room(exc) from None
             raise
         with self._lock:
             self.made += 1
         box.fence = _fence(box.snapshot)
         return box
 
+    def _new_overlay(self, box: Sandbox) -> None:
+        if self._hidden is None:
+            self._hidden = hidden_entries(self.root, copy_ignore(self.root, self.skip))
+        for name in ("repo", "upper", "work"):
+            (box.base / name).mkdir()
+        make_upper(self.root, box.upper, self._hidden)
+        box.lower = self.root.resolve()
+
+    def _new_copy(self, box: Sandbox) -> None:
+        if box.method == "copy":
+            needed = self._repo_size()
+            free = free_space(box.base)
+            if free is not None and needed > free:
+                raise EnvironmentProblem(self._room_message(box.base.parent, needed, free))
+        cloner = Cloner(try_clone=box.method == "reflink")
+        copy_repo(self.root, box.repo, self.skip, copier=cloner)
+        if box.method == "reflink" and cloner.copied and not cloner.cloned:
+            # the temp folder's file system cannot clone the repo's files: plain copies from now on
+            with self._method_lock:
+                self.method = "copy"
+            box.method = "copy"
+        box.snapshot = scan(box.repo) if self._reuse else {}
+
+    def _repo_size(self) -> int:
+        if self._size is None:
+            self._size = repo_size(self.root, self.skip)
+        return self._size
+
+    def _room_message(self, temp: Path, needed: int, free: int) -> str:
+        return (f"no space left in the temp folder {temp} for a copy of the repo {self.root.name}: "
+                f"{human_size(needed)} needed per job ({self.jobs} job{'s' * (self.jobs != 1)}), "
+                f"{human_size(free)} free; free some space, use --jobs 1, or point TMPDIR at a larger disk")
+
+    def _no_room(self, exc: BaseException) -> EnvironmentProblem:
+        """The one-line error for a sandbox that could not be made (``exc`` came from the machine)."""
+        if isinstance(exc, EnvironmentProblem):
+            return exc
+        folder = self.base_folder()
+        text = describe_os_error(exc, folder, "make a sandbox of the repo")
+        if "no space" in text:
+            free = free_space(folder) or 0
+            text = self._room_message(folder, self._repo_size(), free)
+        return EnvironmentProblem(text)
+
+    def base_folder(self) -> Path:
+        """The folder sandboxes are made in."""
+        from figproof.run.scratch import temp_root
+
+        return temp_root()
+
     def release(self, box: Sandbox) -> None:
         """Restore ``box`` for the next script, or delete it when that is not possible."""
-        keep = self._reuse and not _coarse_stamps(box.snapshot)
+        keep = self._reuse and box.method != "overlay" and not _coarse_stamps(box.snapshot)
         if keep:
             try:
                 before = box.snapshot
@@ -265,7 +401,7 @@ class SandboxPool:
         remove_tree(box.base)
 
     def close(self) -> None:
-        """Delete every idle copy (copies still in use are deleted when released after this)."""
+        """Delete every idle sandbox (sandboxes still in use are deleted when released after this)."""
         with self._lock:
             idle, self._idle = self._idle, []
             self._reuse = False
@@ -292,7 +428,7 @@ def _coarse_stamps(snapshot: Snapshot) -> bool:
 def _clear_scratch(box: Sandbox) -> None:
     """Remove the per-run files beside the copy (spec, matplotlib config folder)."""
     try:
-        names = [n for n in os.listdir(box.base) if n != "repo"]
+        names = [n for n in os.listdir(box.base) if n not in ("repo", MARKER)]
     except OSError:
         return
     for name in names:
