@@ -49,6 +49,20 @@ ENVIRONMENT_EXIT = 75  # as figproof.run.execute.ENVIRONMENT_EXIT (not imported:
 ENVIRONMENT_MARK = "figproof-environment: "
 
 
+def _die_with_parent() -> None:
+    """On Linux, end this child when the process that started it dies (figproof killed with SIGKILL), so it
+    cannot run on unwatched; its process group still goes the usual way."""
+    if not sys.platform.startswith("linux"):
+        return
+    try:
+        import ctypes
+        import signal
+
+        ctypes.CDLL(None, use_errno=True).prctl(1, int(signal.SIGKILL), 0, 0, 0)  # PR_SET_PDEATHSIG, <linux/prctl.h>
+    except (OSError, AttributeError):
+        pass
+
+
 def enter_view(spec: Spec) -> None:
     """Mount the overlay view of the repo when the sandbox is one (first thing: before threads, hooks or
     any confinement that forbids mounting); a refusal ends the child with the machine's exit status."""
@@ -191,6 +205,7 @@ def main(argv: list[str] | None = None) -> int:
     """Run one script under capture and write its run record."""
     argv = sys.argv[1:] if argv is None else argv
     spec = Spec.read(Path(argv[0]))
+    _die_with_parent()
     enter_view(spec)
     try:
         return _run(spec)
