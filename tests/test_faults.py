@@ -22,10 +22,11 @@ from pathlib import Path
 
 import pytest
 
-from figproof import cli, scratch
-from figproof.execute import Options, Task, execute_all
-from figproof.resources import EnvironmentProblem
-from figproof.sandbox import SandboxPool
+from figproof import cli
+from figproof.run import scratch
+from figproof.run.execute import FreshInterpreter, Options, Task, execute_all
+from figproof.run.resources import EnvironmentProblem
+from figproof.run.sandbox import SandboxPool
 
 linux_only = pytest.mark.skipif(not sys.platform.startswith("linux"), reason="uses /proc and Linux mounts")
 WAIT = 120.0  # seconds before a test gives up waiting for a line or an exit (a failure, never a pass)
@@ -250,7 +251,7 @@ def test_no_room_for_the_copy_stand_in(tmp_path: Path, monkeypatch: pytest.Monke
     def full(*_args: object, **_kw: object) -> None:
         raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
 
-    monkeypatch.setattr("figproof.sandbox.copy_repo", full)
+    monkeypatch.setattr("figproof.run.sandbox.copy_repo", full)
     code = cli.main(["check", str(repo), "--no-cache", "--json", str(tmp_path / "r.json")])
     out, err = capsys.readouterr()
     assert code == cli.ExitCode.ENVIRONMENT
@@ -306,9 +307,7 @@ def test_fork_refused_is_the_machines_trouble(tmp_path: Path, monkeypatch: pytes
     def refuse(*_args: object, **_kw: object) -> None:
         raise BlockingIOError(errno.EAGAIN, os.strerror(errno.EAGAIN))
 
-    monkeypatch.setattr("figproof.execute.subprocess.Popen", refuse)
-    from figproof.execute import FreshInterpreter
-
+    monkeypatch.setattr("figproof.run.execute.subprocess.Popen", refuse)
     options = Options(root=repo, artifacts=tmp_path / "art", jobs=2)
     with pytest.raises(EnvironmentProblem, match="refused to start a process"):
         execute_all([Task(script="a.py"), Task(script="b.py")], options, runner=FreshInterpreter())
@@ -334,8 +333,8 @@ def test_overlay_view_keeps_the_repo_untouched_and_copies_nothing(tmp_path: Path
         plt.savefig("figures/out.png")
         print(seen, size, flush=True)
     """
-    repo = write_repo(tmp_path / "repo", {"figures/edit.py": script, "data/big.bin": big,
-                                          "data/notes.txt": "original", "data/old.csv": "a,b\n1,2\n",
+    repo = write_repo(tmp_path / "repo", {"figures/edit.py": script, "figures/edit_too.py": script,
+                                          "data/big.bin": big, "data/notes.txt": "original", "data/old.csv": "a,b\n1,2\n",
                                           ".git/HEAD": "ref: refs/heads/main\n", "figures/__pycache__/x.pyc": ""})
     before = {p: p.read_bytes() for p in sorted(repo.rglob("*")) if p.is_file()}
     with SandboxPool(repo, jobs=2, method="auto") as pool:
@@ -349,9 +348,10 @@ def test_overlay_view_keeps_the_repo_untouched_and_copies_nothing(tmp_path: Path
         assert not any(p.is_file() for p in box.upper.rglob("*"))
         pool.release(box)
         options = Options(root=repo, artifacts=tmp_path / "art", sandboxes=pool, jobs=2)
-        first, second = execute_all([Task(script="figures/edit.py"), Task(script="figures/edit.py")], options)
+        first, second = execute_all([Task(script="figures/edit.py"), Task(script="figures/edit_too.py")], options,
+                                    FreshInterpreter())
     for run in (first, second):
-        assert run.status == "ok", run.stderr_tail
+        assert run.status == "ok", (run.error, run.stderr_tail)
         assert "repo-overlay" in run.isolation
         # each run sees the repo as committed: the other run's edit and deletion are not in its view
         assert run.stdout_tail.strip() == "['data', 'figures'] 1048576"
@@ -363,11 +363,11 @@ def test_overlay_view_keeps_the_repo_untouched_and_copies_nothing(tmp_path: Path
 @linux_only
 def test_overlay_refused_falls_back_to_a_copy(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     monkeypatch.setenv("TMPDIR", str(tmp_path))
-    monkeypatch.setattr("figproof.sandbox.probe_overlay", lambda *_a: "overlay refused: Operation not permitted")
+    monkeypatch.setattr("figproof.run.sandbox.probe_overlay", lambda *_a: "overlay refused: Operation not permitted")
     repo = write_repo(tmp_path / "repo", {"figures/bars.py": FAST, "data/x.csv": "a\n1\n"})
     with SandboxPool(repo, method="auto") as pool:
         options = Options(root=repo, artifacts=tmp_path / "art", sandboxes=pool)
-        (run,) = execute_all([Task(script="figures/bars.py")], options)
+        (run,) = execute_all([Task(script="figures/bars.py")], options, FreshInterpreter())
         assert pool.why_not_overlay.startswith("overlay refused")
         # ext4 and tmpfs cannot clone: the clone attempt falls back to copies (btrfs or XFS would clone)
         assert pool.method in ("reflink", "copy")
@@ -376,7 +376,7 @@ def test_overlay_refused_falls_back_to_a_copy(tmp_path: Path, monkeypatch: pytes
 
 
 def test_clone_refused_copies_the_file(tmp_path: Path) -> None:
-    from figproof.view import Cloner
+    from figproof.run.view import Cloner
 
     src = tmp_path / "a.bin"
     src.write_bytes(b"x" * 5000)
@@ -390,8 +390,8 @@ def test_clone_refused_copies_the_file(tmp_path: Path) -> None:
 
 
 def test_report_header_names_the_repo_view() -> None:
-    from figproof.findings import CheckResult, Summary
-    from figproof.model import ScriptRun
+    from figproof.model.findings import CheckResult, Summary
+    from figproof.model.records import ScriptRun
     from figproof.report import json as json_report
     from figproof.report import markdown
 
@@ -402,3 +402,29 @@ def test_report_header_names_the_repo_view() -> None:
     header = markdown.render(result).splitlines()[2]
     assert "Isolation: ran on an overlay of the read-only repo (nothing copied), memory cap, network off." in header
     assert json.loads(json_report.render(result))["scripts"][0]["isolation"][0] == "repo-overlay"
+
+
+@linux_only
+def test_cache_temp_folder_of_a_killed_check_is_pruned_at_once(tmp_path: Path) -> None:
+    from figproof.run.cache import RUNS, prune
+
+    runs = tmp_path / "cache" / RUNS
+    runs.mkdir(parents=True)
+    gone = subprocess.run([sys.executable, "-c", "import os; print(os.getpid())"], capture_output=True,
+                          text=True, check=True)
+    dead, writing = runs / ".tmp-dead", runs / ".tmp-writing"
+    for folder, pid in ((dead, int(gone.stdout)), (writing, os.getpid())):
+        folder.mkdir()
+        record = scratch.owner_record(pid if pid == os.getpid() else None)
+        record["pid"] = pid
+        if pid != os.getpid():
+            record["start"] = 1
+        (folder / scratch.MARKER).write_text(json.dumps(record))
+    assert prune(tmp_path / "cache", []) == [".tmp-dead"]  # the one still being written stays
+    assert writing.is_dir()
+
+
+def test_readme_lists_every_exit_code() -> None:
+    readme = (Path(__file__).resolve().parents[1] / "README.md").read_text(encoding="utf-8")
+    for code in cli.ExitCode:
+        assert f"| `{int(code)}` |" in readme, code

@@ -36,6 +36,11 @@ cache, and the run carries a one-line note naming the folder; a corrupt entry
 is replaced.  Only folders figproof created inside ``<cache>/runs/`` are ever
 written or removed.
 
+An interrupted check leaves no torn entry: an entry is written whole in a
+temporary folder (marked with its owner, see :mod:`figproof.run.scratch`) and
+renamed into place.  The temporary folder of a check that was killed is removed
+by the next prune as soon as its owner is gone (unmarked ones after an hour).
+
 Limits (best effort, like the isolation): files a script reaches without
 Python's ``open`` (a C library opening a path itself) and files a glob would
 newly match in a folder the run never read from are not seen.
@@ -64,13 +69,14 @@ from figproof.discover.imports import local_imports, search_folders
 from figproof.hashing import file_sha256
 from figproof.model.records import ScriptRun, dump_run, load_run
 from figproof.run.execute import Options, Runner, Task, artifact_folder
+from figproof.run.scratch import MARKER, owner_alive, owner_record, read_owner
 
 KEY_SCHEMA = 1
 RUNS = "runs"  # entries live here, one folder per script: key.json + artifact/
 KEY_FILE = "key.json"
 ARTIFACT = "artifact"
 CACHED_ERRORS = frozenset({"exception", "exit", "needs-input"})  # deterministic failures
-STALE_TEMP_SECONDS = 3600.0  # temp folders older than this were left by an interrupted check
+STALE_TEMP_SECONDS = 3600.0  # unmarked temp folders older than this were left by an interrupted check
 _PACKAGES = (("numpy", "numpy"), ("pandas", "pandas"), ("matplotlib", "matplotlib"), ("pillow", "Pillow"))
 _TAG = "Signature: 8a477f597d28d172789f06886806bc55\n# figproof result cache; safe to delete.\n"
 
@@ -431,10 +437,13 @@ class CachingRunner:
         tmp: Path | None = None
         try:
             tmp = Path(tempfile.mkdtemp(prefix=".tmp-", dir=self.cache_dir / RUNS))
+            # a check killed while it writes leaves this folder: the marker lets the next one remove it at once
+            (tmp / MARKER).write_text(json.dumps(owner_record()), encoding="utf-8")
             if artifacts.is_dir():
                 shutil.copytree(artifacts, tmp / ARTIFACT)
             dump_run(run, tmp / ARTIFACT)  # the final run: seconds and output tails included
             (tmp / KEY_FILE).write_text(json.dumps(key, sort_keys=True, indent=1), encoding="utf-8")
+            (tmp / MARKER).unlink()
             if entry.exists():
                 old = entry.with_name(f".old-{os.getpid()}-{threading.get_ident()}-{entry.name}")
                 os.rename(entry, old)
@@ -484,8 +493,10 @@ def prune(cache_dir: Path, keep_scripts: Iterable[str]) -> list[str]:
         if not child.is_dir() or child.is_symlink():
             continue
         if child.name.startswith((".tmp-", ".old-")):
+            owner = read_owner(child)
             try:
-                stale = now - child.stat().st_mtime > STALE_TEMP_SECONDS or child.name.startswith(".old-")
+                stale = now - child.stat().st_mtime > STALE_TEMP_SECONDS or child.name.startswith(".old-") or (
+                    owner is not None and not owner_alive(owner))
             except OSError:
                 continue
             if not stale:

@@ -401,6 +401,8 @@ def execute_all(tasks: Iterable[Task], options: Options, runner: Runner,
     if options.sandboxes is None:
         sandboxes = SandboxPool(options.root, options.skip_copy, jobs=options.jobs, method=view_method())
         options = replace(options, sandboxes=sandboxes)
+        # how to show the repo is probed while a lazily built runner starts (the warm pool's imports take longer)
+        threading.Thread(target=sandboxes.decide, name="figproof-view-probe", daemon=True).start()
     results: list[ScriptRun | None] = [None] * len(tasks)
     done = 0
     lock = threading.Lock()

@@ -268,7 +268,7 @@ class SandboxPool:
 
     def acquire(self) -> Sandbox:
         """A sandbox no script has changed (made now, or restored after its last use)."""
-        self._decide()
+        self.decide()
         with self._lock:
             box = self._pick()
         if box is None:
@@ -279,12 +279,19 @@ class SandboxPool:
             wait = box.fence - _now_ns()
         return box
 
-    def _decide(self) -> None:
-        """Resolve ``auto`` (once): the overlay when a probe mount works, else clones or copies."""
+    def decide(self) -> None:
+        """Resolve ``auto`` (once; thread-safe): the overlay when a probe mount works, else clones or copies.
+
+        Called by the first ``acquire``; calling it earlier (in a thread while the runner starts) hides the
+        probe's cost.  Failures to make the probe's folder are left for ``acquire`` to report.
+        """
         with self._method_lock:
             if self.method != "auto":
                 return
-            probe = make_scratch()
+            try:
+                probe = make_scratch()
+            except EnvironmentProblem:
+                return
             try:
                 self.why_not_overlay = probe_overlay(self.root.resolve(), probe, self._python)
             finally:
