@@ -12,6 +12,7 @@ from __future__ import annotations
 import errno
 import json
 import os
+import shutil
 import signal
 import subprocess
 import sys
@@ -375,6 +376,53 @@ def test_overlay_refused_falls_back_to_a_copy(tmp_path: Path, monkeypatch: pytes
     assert leftovers(tmp_path) == []
 
 
+@pytest.fixture
+def btrfs(tmp_path: Path) -> Iterator[Path]:
+    """A small btrfs file system on a loop device (copy-on-write clones); skipped without mkfs.btrfs or root."""
+    if shutil.which("mkfs.btrfs") is None:
+        pytest.skip("mkfs.btrfs (btrfs-progs) is not installed: no file system with clones to test on")
+    image, mount = tmp_path / "btrfs.img", tmp_path / "btrfs"
+    with open(image, "wb") as fh:
+        fh.truncate(256 << 20)  # sparse; btrfs needs a little over 100 MiB
+    mount.mkdir()
+    made = subprocess.run(["mkfs.btrfs", "-q", str(image)], capture_output=True)
+    if made.returncode != 0 or subprocess.run(["mount", "-o", "loop", str(image), str(mount)],
+                                              capture_output=True).returncode != 0:
+        pytest.skip("cannot make and mount a loop btrfs here (needs root and loop devices)")
+    try:
+        yield mount
+    finally:
+        subprocess.run(["umount", str(mount)], check=False, capture_output=True)
+
+
+@linux_only
+def test_reflink_view_shares_the_data_files_blocks(btrfs: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    tmp = btrfs / "tmp"
+    tmp.mkdir()
+    monkeypatch.setenv("TMPDIR", str(tmp))
+    monkeypatch.setattr("figproof.run.sandbox.probe_overlay", lambda *_a: "overlay refused: stand-in")
+    data = os.urandom(1 << 20) * 40  # 40 MiB of data that compression could not shrink much
+    repo = write_repo(btrfs / "repo", {"figures/bars.py": FAST, "data/plates.bin": data})
+    os.sync()
+    free_before = shutil.disk_usage(btrfs).free
+    with SandboxPool(repo, jobs=2, method="auto") as pool:
+        boxes = [pool.acquire(), pool.acquire()]
+        os.sync()
+        used = free_before - shutil.disk_usage(btrfs).free
+        assert pool.method == "reflink" and all(b.method == "reflink" for b in boxes)
+        # two full copies would take 80 MiB; clones take metadata only
+        assert used < 8 << 20, used
+        with open(boxes[0].repo / "data" / "plates.bin", "r+b") as fh:
+            fh.write(b"changed")  # copy-on-write: the clone changes, the repo's file does not
+        assert (repo / "data" / "plates.bin").read_bytes() == data
+        for box in boxes:
+            pool.release(box)
+        options = Options(root=repo, artifacts=tmp / "art", sandboxes=pool)
+        (run,) = execute_all([Task(script="figures/bars.py")], options, FreshInterpreter())
+    assert run.status == "ok" and "repo-reflink" in run.isolation
+    assert leftovers(tmp) == []
+
+
 def test_clone_refused_copies_the_file(tmp_path: Path) -> None:
     from figproof.run.view import Cloner
 
@@ -428,3 +476,50 @@ def test_readme_lists_every_exit_code() -> None:
     readme = (Path(__file__).resolve().parents[1] / "README.md").read_text(encoding="utf-8")
     for code in cli.ExitCode:
         assert f"| `{int(code)}` |" in readme, code
+
+
+@linux_only
+def test_a_second_signal_during_clean_up_stops_at_once() -> None:
+    # the clean-up after the first SIGINT is made to hang; the second SIGINT must end the process anyway
+    code = textwrap.dedent("""
+        import os, signal, time
+        from figproof.interrupt import Interrupted, stop_on_signals
+        with stop_on_signals():
+            try:
+                os.kill(os.getpid(), signal.SIGINT)
+                time.sleep(60)
+            except Interrupted as exc:
+                print("first", exc.exit_code, flush=True)
+                os.kill(os.getpid(), signal.SIGINT)
+                time.sleep(60)  # a clean-up that would take a minute
+        print("not reached", flush=True)
+    """)
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=WAIT)
+    assert done.returncode == 130
+    assert done.stdout.split() == ["first", "130"]
+    assert "stopped at once" in done.stderr and "Traceback" not in done.stderr
+
+
+def test_too_many_open_files_names_the_folder(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    def refuse(*_args: object, **_kw: object) -> str:
+        raise OSError(errno.EMFILE, os.strerror(errno.EMFILE))
+
+    monkeypatch.setattr("figproof.run.scratch.tempfile.mkdtemp", refuse)
+    with pytest.raises(EnvironmentProblem) as caught:
+        scratch.make_scratch(parent=tmp_path)
+    assert str(caught.value) == (f"too many open files to make a temporary folder in {tmp_path}; raise the limit "
+                                 f"(ulimit -n) or run fewer jobs (--jobs)")
+
+
+@pytest.mark.slow
+@linux_only
+def test_an_overlay_the_child_cannot_mount_is_one_line(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # a comma cannot be written in overlayfs's mount options: the child refuses and says so, the parent stops
+    repo = write_repo(tmp_path / "lab,2024", {"figures/bars.py": FAST})
+    monkeypatch.setenv("TMPDIR", str(tmp_path))
+    with SandboxPool(repo, method="overlay") as pool:
+        options = Options(root=repo, artifacts=tmp_path / "art", sandboxes=pool)
+        with pytest.raises(EnvironmentProblem, match=r"could not mount the overlay view of the repo in .*"
+                                                     r"FIGPROOF_REPO_VIEW=copy"):
+            execute_all([Task(script="figures/bars.py")], options, FreshInterpreter())
+    assert leftovers(tmp_path) == []

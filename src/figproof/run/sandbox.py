@@ -139,10 +139,13 @@ def _covered(path: str, done: set[str]) -> bool:
     return any("/".join(parts[:i]) in done for i in range(1, len(parts)))
 
 
-def restore(copy: Path, source: Path, snapshot: Snapshot, skip: Sequence[str] = ()) -> Snapshot:
+def restore(copy: Path, source: Path, snapshot: Snapshot, skip: Sequence[str] = (), *,
+            copier: Callable[[str, str], object] = shutil.copy2) -> Snapshot:
     """Make ``copy`` match ``snapshot`` again, copying changed or missing entries from the repo ``source``.
 
-    ``skip`` are the repo-relative folders the copy was made without (see :func:`copy_repo`).  Returns the new snapshot (entries put back have new inodes and times).  Raises OSError when the copy
+    ``skip`` are the repo-relative folders the copy was made without (see :func:`copy_repo`); ``copier`` copies
+    one file (a clone where the file system can).  Returns the new snapshot (entries put back have new inodes
+    and times).  Raises OSError when the copy
     cannot be restored; the caller then throws it away.
     """
     now = scan(copy)
@@ -163,12 +166,12 @@ def restore(copy: Path, source: Path, snapshot: Snapshot, skip: Sequence[str] = 
             continue
         _remove(target, new)
         if old is not None:
-            _put_back(source, path, target, old, skip)
+            _put_back(source, path, target, old, skip, copier)
         if _is_dir(new) or (old is not None and _is_dir(old)):
             handled.add(path)
     for path in sorted(snapshot):
         if path not in now and not (handled and _covered(path, handled)):
-            _put_back(source, path, copy / path, snapshot[path], skip)
+            _put_back(source, path, copy / path, snapshot[path], skip, copier)
             if _is_dir(snapshot[path]):
                 handled.add(path)
     after = scan(copy)
@@ -188,14 +191,15 @@ def _remove(target: Path, stamp: Stamp) -> None:
             target.unlink()
 
 
-def _put_back(root: Path, path: str, dest: Path, stamp: Stamp, skip: Sequence[str]) -> None:
+def _put_back(root: Path, path: str, dest: Path, stamp: Stamp, skip: Sequence[str],
+              copier: Callable[[str, str], object] = shutil.copy2) -> None:
     src = root / path
     if _is_dir(stamp):
-        copy_repo(src, dest, skip, top=root)
+        copy_repo(src, dest, skip, top=root, copier=copier)
     elif stat.S_ISLNK(stamp[0]):
         os.symlink(os.readlink(src), dest)
     else:
-        shutil.copy2(src, dest, follow_symlinks=False)
+        copier(str(src), str(dest))
 
 
 @dataclass(eq=False)
@@ -392,7 +396,8 @@ class SandboxPool:
         if keep:
             try:
                 before = box.snapshot
-                box.snapshot = restore(box.repo, self.root, before, self.skip)
+                box.snapshot = restore(box.repo, self.root, before, self.skip,
+                                       copier=Cloner(try_clone=box.method == "reflink"))
                 changed = sum(1 for p, s in box.snapshot.items() if before.get(p) != s)
                 box.fence = max(box.fence, _fence(box.snapshot))
                 with self._lock:
