@@ -115,7 +115,12 @@ class WarmPool:
                 # macOS: system frameworks are not fork-safe once loaded; the fresh interpreter is the safe mode
                 self._gave_up = True
                 return False
-            if not self._spawn():
+            try:
+                up = self._spawn()
+            except BaseException:
+                self.close()  # interrupted while the server imports: stop it and remove its folder
+                raise
+            if not up:
                 self._gave_up = True
                 self.close()
                 return False
