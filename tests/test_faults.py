@@ -160,7 +160,8 @@ def test_sweep_removes_only_folders_whose_owner_is_gone(tmp: Path) -> None:
     reused = tmp / "figproof-reused-pid"  # this process's id, but an earlier start time: a recycled id
     reused.mkdir()
     record = scratch.owner_record()
-    (reused / scratch.MARKER).write_text(json.dumps({**record, "start": int(record["start"]) - 1}))  # type: ignore[call-overload]
+    earlier = int(record["start"]) - 1  # type: ignore[call-overload]
+    (reused / scratch.MARKER).write_text(json.dumps({**record, "start": earlier}))
     other = tmp / "something-else"
     other.mkdir()
     (other / scratch.MARKER).write_text(json.dumps({"pid": dead_pid, "start": 1, "boot": None}))
@@ -335,7 +336,8 @@ def test_overlay_view_keeps_the_repo_untouched_and_copies_nothing(tmp_path: Path
         print(seen, size, flush=True)
     """
     repo = write_repo(tmp_path / "repo", {"figures/edit.py": script, "figures/edit_too.py": script,
-                                          "data/big.bin": big, "data/notes.txt": "original", "data/old.csv": "a,b\n1,2\n",
+                                          "data/big.bin": big, "data/notes.txt": "original",
+                                          "data/old.csv": "a,b\n1,2\n",
                                           ".git/HEAD": "ref: refs/heads/main\n", "figures/__pycache__/x.pyc": ""})
     before = {p: p.read_bytes() for p in sorted(repo.rglob("*")) if p.is_file()}
     with SandboxPool(repo, jobs=2, method="auto") as pool:

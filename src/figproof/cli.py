@@ -143,7 +143,7 @@ def _stopped(exc: BaseException) -> int:
     sweep_stale(also_mine=True)  # anything a clean-up step missed (interrupted between making and recording)
     name = exc.name if isinstance(exc, Interrupted) else "SIGINT"
     print(f"\nfigproof: stopped by {name}; its child processes were ended and its temporary folders removed; "
-          f"no report was written", file=sys.stderr)
+          f"no report was left half-written", file=sys.stderr)
     return exc.exit_code if isinstance(exc, Interrupted) else ExitCode.INTERRUPTED
 
 

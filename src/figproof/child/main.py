@@ -32,7 +32,7 @@ class Spec:
     mode: str = "fresh-interpreter"  # or "warm-pool": how the process was started
     protect: tuple[str, ...] = ()  # folders never written (the user's own repo), even inside the temp folder
     renders: bool = True  # write each figure's pixels (for image panels and --twice); costs a full draw
-    view: Any = None  # how the sandbox shows the repo: {"method": "copy" | "reflink" | "overlay", ...}
+    view: dict[str, str] | None = None  # how the sandbox shows the repo: {"method": copy | reflink | overlay, ...}
 
     @classmethod
     def read(cls, path: Path) -> Spec:

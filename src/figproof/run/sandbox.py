@@ -1,6 +1,7 @@
 """Sandbox copies of the repo, reused from one script to the next after a check that nothing changed.
 
-Every script runs on a copy of the repo (:func:`copy_repo`), never on the user's files.
+Every script runs on a view of the repo, never on the user's files: where the platform allows an overlay or
+clones (see the end of this docstring), else a copy (:func:`copy_repo`).
 Copying the whole repo for every script costs more than many figure scripts take to run, so a
 :class:`SandboxPool` keeps the copies: when a script has ended (and its process group has been killed), the
 copy is compared with a snapshot taken when it was made — every entry's type, inode, size, permissions,
