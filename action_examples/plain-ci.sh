@@ -1,6 +1,7 @@
 #!/bin/sh
 # Any CI system (or a data editor's laptop): install figproof, check, keep the report folder.
-# Exit status is figproof's: 0 passed, 1 thresholds crossed, 2 usage or configuration error.
+# Exit status is figproof's: 0 passed, 1 thresholds crossed, 2 usage or configuration error, 3 a bug in
+# figproof, 4 the runner lacks room or a writable temp folder, 130/143 the job was interrupted (see README).
 set -eu
 
 python -m pip install figproof

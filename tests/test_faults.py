@@ -134,7 +134,8 @@ def test_a_signal_mid_run_stops_children_and_leaves_no_temp_folder(tmp_path: Pat
 def test_kill_9_then_a_new_check_sweeps_the_leftovers_and_keeps_the_cache(tmp_path: Path, tmp: Path) -> None:
     repo = write_repo(tmp_path / "repo", {"figures/a_fast.py": FAST, "figures/b_slow.py": SLOW})
     proc = start_check(repo, tmp, "--jobs", "1")
-    wait_started(tmp, proc)  # a_fast.py has finished and is in the cache: scripts run in order with one job
+    # a_fast.py has finished and is in the cache: scripts run in order with one job
+    (script_pid, parent_pid, sleeper_pid), = wait_started(tmp, proc)
     proc.kill()
     proc.communicate(timeout=WAIT)
     left = leftovers(tmp)
@@ -144,6 +145,9 @@ def test_kill_9_then_a_new_check_sweeps_the_leftovers_and_keeps_the_cache(tmp_pa
     assert again.returncode in (0, 1), err
     assert leftovers(tmp) == []  # the stale folders were swept, the new check removed its own
     assert "1 of 2 script results from the cache" in err
+    # the killed check's children did not run on: the pool's server saw its requests end, and a fresh
+    # interpreter's child dies with its parent
+    assert not alive(script_pid) and not alive(parent_pid) and not alive(sleeper_pid)
 
 
 @linux_only
