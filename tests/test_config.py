@@ -423,5 +423,7 @@ def test_loader_and_catalogue_schema_agree(tmp_path: Path, body: str, valid: boo
 
 def test_catalogue_schema_covers_the_real_rules() -> None:
     schema = config_schema(rules_pkg.by_id())
-    assert set(schema["properties"]["rules"]["properties"]) == set(rules_pkg.by_id())
+    former = {old for r in rules_pkg.RULES for old in r.former_ids}  # renamed ids stay valid, marked deprecated
+    assert set(schema["properties"]["rules"]["properties"]) == set(rules_pkg.by_id()) | former
+    assert all(schema["properties"]["rules"]["properties"][old]["deprecated"] for old in former)
     assert schema_accepts(schema, {"rules": {"script-fails": {"severity": "note"}}})

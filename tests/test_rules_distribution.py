@@ -1,4 +1,4 @@
-"""Distribution rules on hand-built models: dots-binned, summary-hides-small-n, box-hides-modes, errorbars-sem."""
+"""Distribution rules on hand-built models: dots-binned, summary-hides-small-n, box-hides-modes, errorbars-ambiguous."""
 
 from __future__ import annotations
 
@@ -8,7 +8,7 @@ from scipy import stats
 
 from figproof.model.records import Axis
 from figproof.rules import distribution
-from figproof.rules.distribution import box_hides_modes, dots_binned, errorbars_sem, summary_hides_small_n
+from figproof.rules.distribution import box_hides_modes, dots_binned, errorbars_ambiguous, summary_hides_small_n
 from tests.builders import (
     asym_errorbars,
     axes,
@@ -43,8 +43,8 @@ def test_module_is_listed() -> None:
     from figproof import rules
 
     ids = {r.id for r in rules.RULES}
-    assert {"dots-binned", "summary-hides-small-n", "box-hides-modes", "errorbars-sem"} <= ids
-    assert (dots_binned, summary_hides_small_n, box_hides_modes, errorbars_sem) == distribution.RULES
+    assert {"dots-binned", "summary-hides-small-n", "box-hides-modes", "errorbars-ambiguous"} <= ids
+    assert (dots_binned, summary_hides_small_n, box_hides_modes, errorbars_ambiguous) == distribution.RULES
 
 
 def test_rules_are_documented() -> None:
@@ -287,7 +287,7 @@ def test_box_modes_bad_input() -> None:
 
 
 # --------------------------------------------------------------------------
-# errorbars-sem (reference values from scipy.stats)
+# errorbars-ambiguous (reference values from scipy.stats)
 # --------------------------------------------------------------------------
 
 
@@ -304,7 +304,7 @@ def test_sem_bars_without_points_warn() -> None:
     groups = _groups(rng)
     # scipy.stats.sem (ddof=1) as the reference for the standard error
     eb = errorbars([0, 1, 2], [g.mean() for g in groups], [stats.sem(g) for g in groups])
-    (hit,) = hits(errorbars_sem, figure(axes(errorbars=[eb]), tables=(_table(groups),)))
+    (hit,) = hits(errorbars_ambiguous, figure(axes(errorbars=[eb]), tables=(_table(groups),)))
     assert hit.severity == "warning" and hit.confidence == "certain"
     assert hit.message == ("error bars: all 3 show ±1 SEM (n = 6, 6, 6); 3 SEM bars on n < 10 without the "
                            "points drawn")
@@ -315,7 +315,7 @@ def test_sem_bars_with_points_are_a_note() -> None:
     groups = _groups(rng)
     eb = errorbars([0, 1, 2], [g.mean() for g in groups], [stats.sem(g) for g in groups])
     pts = [points(jitter(rng, i, 6, 0.1), g) for i, g in enumerate(groups)]
-    (hit,) = hits(errorbars_sem, figure(axes(errorbars=[eb], points=pts)))  # raw data from the drawn points
+    (hit,) = hits(errorbars_ambiguous, figure(axes(errorbars=[eb], points=pts)))  # raw data from the drawn points
     assert hit.severity is None and "±1 SEM" in hit.message
 
 
@@ -330,7 +330,7 @@ def test_symmetric_types(half, label) -> None:
     rng = np.random.default_rng(32)
     groups = _groups(rng, n=12)
     eb = errorbars([0, 1, 2], [g.mean() for g in groups], [half(g) for g in groups])
-    (hit,) = hits(errorbars_sem, figure(axes(errorbars=[eb]), samples=tuple(sample_of(g, origin="bar") for g in groups)))
+    (hit,) = hits(errorbars_ambiguous, figure(axes(errorbars=[eb]), samples=tuple(sample_of(g, origin="bar") for g in groups)))
     assert hit.message == f"error bars: all 3 show {label} (n = 12, 12, 12)"
     assert hit.severity is None
 
@@ -339,7 +339,7 @@ def test_half_lengths_outside_tolerance_are_not_matched() -> None:
     rng = np.random.default_rng(33)
     groups = _groups(rng, n=12)
     eb = errorbars([0, 1, 2], [g.mean() for g in groups], [1.01 * stats.sem(g) for g in groups])
-    (hit,) = hits(errorbars_sem, figure(axes(errorbars=[eb]), tables=(_table(groups),)))
+    (hit,) = hits(errorbars_ambiguous, figure(axes(errorbars=[eb]), tables=(_table(groups),)))
     assert "3 match none of" in hit.message and hit.confidence == "likely"
 
 
@@ -350,7 +350,7 @@ def test_percentile_interval_around_median() -> None:
     lo = [np.percentile(g, 2.5) for g in groups]
     hi = [np.percentile(g, 97.5) for g in groups]
     eb = asym_errorbars([0, 1, 2], med, lo, hi)
-    (hit,) = hits(errorbars_sem, figure(axes(errorbars=[eb]), tables=(_table(groups),)))
+    (hit,) = hits(errorbars_ambiguous, figure(axes(errorbars=[eb]), tables=(_table(groups),)))
     assert "the 95% percentile interval (n = 25, 25, 25)" in hit.message
 
 
@@ -364,7 +364,7 @@ def test_bootstrap_ci_is_recognised_approximately() -> None:
         lo.append(res.confidence_interval.low)
         hi.append(res.confidence_interval.high)
     eb = asym_errorbars([0, 1, 2], [g.mean() for g in groups], lo, hi)
-    (hit,) = hits(errorbars_sem, figure(axes(errorbars=[eb]), tables=(_table(groups),)))
+    (hit,) = hits(errorbars_ambiguous, figure(axes(errorbars=[eb]), tables=(_table(groups),)))
     assert "a 95% bootstrap CI of the mean" in hit.message and "(n = 30, 30, 30)" in hit.message and hit.confidence == "likely"
 
 
@@ -375,14 +375,14 @@ def test_grouped_table_and_mixed_types() -> None:
     g = [signal[dose == k] for k in range(4)]
     half = [stats.sem(g[0]), stats.sem(g[1]), np.std(g[2], ddof=1), 0.123]
     eb = errorbars([0, 1, 2, 3], [x.mean() for x in g], half)
-    (hit,) = hits(errorbars_sem, figure(axes(errorbars=[eb]), tables=(table_of(signal=signal, groups={"dose": dose}),)))
+    (hit,) = hits(errorbars_ambiguous, figure(axes(errorbars=[eb]), tables=(table_of(signal=signal, groups={"dose": dose}),)))
     assert hit.message.startswith("error bars: 2 of 4 (50%) show ±1 SEM (n = 6, 6); 1 of 4 (25%) show ±1 SD")
     assert "1 match none of" in hit.message
 
 
 def test_unknown_data_says_nothing() -> None:
     eb = errorbars([0, 1], [3.0, 4.0], [0.5, 0.7])
-    assert hits(errorbars_sem, figure(axes(errorbars=[eb]))) == []
+    assert hits(errorbars_ambiguous, figure(axes(errorbars=[eb]))) == []
 
 
 def test_errorbars_bad_input() -> None:
@@ -392,13 +392,13 @@ def test_errorbars_bad_input() -> None:
     empty = errorbars([], [], [])
     constant = errorbars([0], [2.0], [0.5])
     for eb, tables in ((nan, (_table(groups),)), (empty, ()), (constant, (table_of(c=[2.0, 2.0, 2.0]),))):
-        assert hits(errorbars_sem, figure(axes(errorbars=[eb]), tables=tables)) == []
+        assert hits(errorbars_ambiguous, figure(axes(errorbars=[eb]), tables=tables)) == []
     masked = table_of(a=np.ma.masked_array([1.0, 2.0, 3.0, 100.0], mask=[0, 0, 0, 1]).filled(np.nan))
     eb = errorbars([0], [2.0], [stats.sem([1.0, 2.0, 3.0])])
-    assert "shows ±1 SEM (n = 3)" in hits(errorbars_sem, figure(axes(errorbars=[eb]), tables=(masked,)))[0].message
+    assert "shows ±1 SEM (n = 3)" in hits(errorbars_ambiguous, figure(axes(errorbars=[eb]), tables=(masked,)))[0].message
     big = rng.normal(5, 1, 10**6)
     eb = errorbars([0], [big.mean()], [np.std(big, ddof=1)])
-    assert "SD" in hits(errorbars_sem, figure(axes(errorbars=[eb]), tables=(table_of(v=big),)))[0].message
+    assert "SD" in hits(errorbars_ambiguous, figure(axes(errorbars=[eb]), tables=(table_of(v=big),)))[0].message
 
 
 def test_raw_values_from_a_recorded_plot_call() -> None:
@@ -407,10 +407,10 @@ def test_raw_values_from_a_recorded_plot_call() -> None:
     g = rng.normal(3, 1, 8)
     eb = errorbars([0], [g.mean()], [np.std(g, ddof=1)])
     fig = figure(axes(errorbars=[eb]), calls=(call_of("plot", axes=None, arg0=np.zeros(8), arg1=g),))
-    assert hits(errorbars_sem, fig)[0].message == "error bars: the one shows ±1 SD (ddof 1) (n = 8)"
+    assert hits(errorbars_ambiguous, fig)[0].message == "error bars: the one shows ±1 SD (ddof 1) (n = 8)"
     # sizes of a scatter call are not observations
     fig = figure(axes(errorbars=[eb]), calls=(call_of("scatter", x=np.zeros(8), y=np.ones(8), s=g),))
-    assert hits(errorbars_sem, fig) == []
+    assert hits(errorbars_ambiguous, fig) == []
 
 
 def test_importing_rules_does_not_import_pyplot() -> None:

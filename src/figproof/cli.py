@@ -159,12 +159,19 @@ def cmd_rules(args: argparse.Namespace) -> int:
 def explain_text(rule_id: str) -> str:
     """The text ``figproof explain RULE`` prints."""
     from figproof.rules import by_id
+    from figproof.model.findings import renamed_note
+    from figproof.rules.base import renamed_ids
 
     catalogue = by_id()
+    renamed = renamed_ids(catalogue)
+    note = []
+    if rule_id in renamed:
+        note = [f"Note: {renamed_note(rule_id, renamed[rule_id])}.", ""]
+        rule_id = renamed[rule_id]
     if rule_id not in catalogue:
         raise UsageError(f"unknown rule {rule_id!r}; `figproof rules` lists them")
     r = catalogue[rule_id]
-    out = [f"{r.id}: {r.summary}", "", f"Default severity: {r.severity}. Scope: {r.scope}.", "",
+    out = [*note, f"{r.id}: {r.summary}", "", f"Default severity: {r.severity}. Scope: {r.scope}.", "",
            "Why it matters", textwrap.fill(r.why, 88), "", "How to fix it", textwrap.fill(r.fix, 88), ""]
     if r.knobs:
         out.append(f"Settings ([tool.figproof.rules.{r.id}])")
@@ -285,12 +292,14 @@ def cmd_demo(args: argparse.Namespace) -> int:
 
 def cmd_accept(args: argparse.Namespace) -> int:
     from figproof.policy.accept import write_accepted
+    from figproof.rules import by_id
+    from figproof.rules.base import renamed_ids
 
     args.quiet, args.verbose = False, False
     checked = do_check(Path(args.path), args)
     shutil.rmtree(checked.artifacts, ignore_errors=True)
     target = checked.config.accepted_path()
-    entries = write_accepted(checked.result.findings, target)
+    entries = write_accepted(checked.result.findings, target, renamed=renamed_ids(by_id()))
     print(f"figproof: {target.name} now accepts {len(entries)} finding(s); commit it, and only new problems "
           f"will fail the build")
     return ExitCode.PASSED

@@ -31,7 +31,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any, NamedTuple
 
 from figproof.discover import gitrepo
-from figproof.model.findings import SEVERITIES
+from figproof.model.findings import SEVERITIES, renamed_note
 
 if TYPE_CHECKING:  # the catalogue is handed in, so loading a config never imports the rules
     from figproof.rules.base import Rule
@@ -101,6 +101,7 @@ class Config:
     accepted_file: str = ".figproof-accepted.json"
     cache_dir: str = ".figproof-cache"
     rules: dict[str, RuleSettings] = field(default_factory=dict)
+    notes: tuple[str, ...] = ()  # things worth saying that are not errors (a former rule id in use)
 
     def accepted_path(self) -> Path:
         """The accepted-findings file as an absolute path."""
@@ -252,12 +253,21 @@ KEYS = (*_KEYS, "rules")
 
 
 def _rule_settings(
-    table: Mapping[str, Any], catalogue: Mapping[str, Rule], shown: str, section: str | None
+    table: Mapping[str, Any], catalogue: Mapping[str, Rule], shown: str, section: str | None,
+    notes: list[str], noted_as: str,
 ) -> dict[str, RuleSettings]:
+    """Per-rule tables; a former rule id is read as the current one and noted in ``notes`` (as ``noted_as``)."""
     prefix = f"{section}.rules" if section else "rules"
+    renamed = {old: r.id for r in catalogue.values() for old in r.former_ids}
     out: dict[str, RuleSettings] = {}
-    for rule_id in sorted(table):
-        body = table[rule_id]
+    for given in sorted(table):
+        body = table[given]
+        rule_id = renamed.get(given, given)
+        if rule_id != given:
+            if rule_id in table:
+                raise ConfigError(shown, f"rule {given!r} and {rule_id!r} are the same rule (it was renamed); "
+                                         f"keep only {rule_id!r}", section=prefix)
+            notes.append(f"{noted_as} [{prefix}.{given}]: {renamed_note(given, rule_id)}")
         if rule_id not in catalogue:
             raise ConfigError(shown, _unknown("rule", rule_id, list(catalogue)), section=prefix)
         where = f"{prefix}.{rule_id}"
@@ -315,12 +325,14 @@ def parse(
     """
     shown = _display(source) if source is not None else "configuration"
     values: dict[str, Any] = {}
+    notes: list[str] = []
     for key in sorted(table):
         value = table[key]
         if key == "rules":
             if not isinstance(value, dict):
                 raise ConfigError(shown, f"'rules' must be a table (got {_show(value)})", section=section)
-            values["rules"] = _rule_settings(value, rules, shown, section)
+            values["rules"] = _rule_settings(value, rules, shown, section, notes,
+                                             source.name if source is not None else shown)
             continue
         if key not in _KEYS:
             hint = _unknown("key", key, list(KEYS))
@@ -332,7 +344,7 @@ def parse(
             values[name] = check(key, value)
         except _Bad as bad:
             raise ConfigError(shown, str(bad), section=section) from None
-    return Config(root=root, source=source, **values)
+    return Config(root=root, source=source, notes=tuple(notes), **values)
 
 
 # --------------------------------------------------------------------------- finding and reading files
@@ -441,6 +453,9 @@ def config_schema(rules: Mapping[str, Rule]) -> dict[str, Any]:
             "properties": knob_props,
             "additionalProperties": False,
         }
+        for old in rule.former_ids:  # still accepted, with a note
+            props[old] = {**props[rule_id], "description": f"Former id of {rule_id}: {rule.summary}",
+                          "deprecated": True}
     schema["properties"]["rules"] = {
         "type": "object",
         "description": "Per-rule severity and knobs, by rule id.",

@@ -18,7 +18,12 @@ def rule_page(r: Rule) -> str:
     lines = [f"# {r.id}", "", r.summary, "",
              f"Default severity: **{r.severity}**; scope: {r.scope} ("
              + ("judged from the drawn figure" if r.scope == "figure" else "judged from the run of the script")
-             + ").", "", "## Why it matters", "", r.why, "", "## How to fix it", "", r.fix, ""]
+             + ").", ""]
+    if r.former_ids:
+        lines += ["Formerly " + ", ".join(f"`{old}`" for old in r.former_ids)
+                  + ": the old id is still accepted in config tables, allow comments and the accepted-findings "
+                  "file, with a note.", ""]
+    lines += ["## Why it matters", "", r.why, "", "## How to fix it", "", r.fix, ""]
     if r.knobs:
         lines += ["## Settings", "", f"Under `[tool.figproof.rules.{r.id}]`:", "",
                   "| key | default | meaning |", "|---|---|---|"]

@@ -19,7 +19,7 @@ from figproof.discover.gitrepo import changed_since
 from figproof.discover.inventory import choose_working_dir, discover
 from figproof.discover.shard import select_shard
 from figproof.model.context import Inventory, RunContext
-from figproof.model.findings import CheckResult, Finding
+from figproof.model.findings import CheckResult, Finding, renamed_note
 from figproof.model.records import ScriptRun
 from figproof.policy.accept import (
     Allow,
@@ -30,6 +30,7 @@ from figproof.policy.accept import (
     parse_allow_comments,
 )
 from figproof.policy.verdict import summarise
+from figproof.rules.base import renamed_ids
 from figproof.run.cache import CachingRunner, prune, recorded_dependencies
 from figproof.run.execute import Options, Runner, Task, execute_all
 from figproof.run.pool import default_runner
@@ -164,6 +165,7 @@ def _check(path: Path, config: Config, inventory: Inventory, options: CheckOptio
     context = build_context(config, inventory, runs, artifacts, second)
     findings = rules.apply(runs, context, config.rules)
     findings, notes = accept_findings(findings, config, inventory)
+    notes = [*config.notes, *notes]
     if not inventory.scripts:
         notes.append("no figure scripts found (no .py or .ipynb file imports matplotlib, seaborn or pandas plotting)")
     summary = summarise(runs, findings, config.fail_on)
@@ -232,7 +234,9 @@ def matplotlib_version() -> str:
 
 def accept_findings(findings: list[Finding], config: Config, inventory: Inventory) -> tuple[list[Finding], list[str]]:
     """Apply inline allow comments and the accepted-findings file; return findings and notes about problems."""
-    known = rules.by_id().keys()
+    catalogue = rules.by_id()
+    known = catalogue.keys()
+    renamed = renamed_ids(catalogue)
     allows: dict[str, dict[int, list[Allow]]] = {}
     notes: list[str] = []
     for path in sorted(set(inventory.scripts) | {f.path for f in findings}):
@@ -242,14 +246,18 @@ def accept_findings(findings: list[Finding], config: Config, inventory: Inventor
         except (OSError, UnicodeDecodeError):
             continue
         if path.endswith(".ipynb"):
-            found, problems = notebook_allow_comments(path, text, known)
+            found, problems = notebook_allow_comments(path, text, known, renamed)
             allows.update(found)
         else:
-            per_line, problems = parse_allow_comments(text, known)
+            per_line, problems = parse_allow_comments(text, known, renamed)
             if per_line:
                 allows[allow_key(path, None)] = per_line
         notes += [f"{path}, {p}" for p in problems]
     entries = load_accepted(config.accepted_path())  # AcceptedFileError: one line, the CLI exits 2
+    former = sorted({e.rule for e in entries if e.rule in renamed})
+    notes += [f"{config.accepted_file}: {renamed_note(old, renamed[old])} (`figproof accept` rewrites the file)"
+              for old in former]
+    entries = [replace(e, rule=renamed[e.rule]) if e.rule in renamed else e for e in entries]
     marked, stale = apply_acceptance(findings, allows, entries)
     notes += [f"{config.accepted_file}: entry for {e.rule} in {e.path} matches no finding any more (stale)"
               for e in stale]

@@ -14,6 +14,11 @@ SEVERITIES: tuple[Severity, ...] = typing.get_args(Severity)
 CONFIDENCES: tuple[Confidence, ...] = typing.get_args(Confidence)
 
 
+def renamed_note(old: str, new: str) -> str:
+    """The deprecation note for a former rule id (config tables, allow comments, accepted entries, explain)."""
+    return f"rule id '{old}' is now '{new}'; the old id still works in this 0.x series, rename it"
+
+
 @model
 class Hit(Serialisable):
     """What a rule yields: one fact with its counted evidence.

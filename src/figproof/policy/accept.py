@@ -34,7 +34,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from figproof.model.findings import Finding
+from figproof.model.findings import Finding, renamed_note
 from figproof.notebook import NotebookError, code_cells
 
 DEFAULT_PATH = ".figproof-accepted.json"
@@ -113,7 +113,8 @@ def _unknown(rule: str, known: Collection[str]) -> str:
     return f"allow comment names unknown rule '{rule}'{hint}"
 
 
-def parse_allow_comments(text: str, known_rules: Collection[str]) -> tuple[dict[int, list[Allow]], list[str]]:
+def parse_allow_comments(text: str, known_rules: Collection[str],
+                         renamed: Mapping[str, str] | None = None) -> tuple[dict[int, list[Allow]], list[str]]:
     """Find the inline allow comments of one script or notebook cell.
 
     Parameters
@@ -122,6 +123,8 @@ def parse_allow_comments(text: str, known_rules: Collection[str]) -> tuple[dict[
         Python source.
     known_rules
         Rule ids that may be named.
+    renamed
+        Former rule id → current id: a former id accepts the current rule, with a problem noting the rename.
 
     Returns
     -------
@@ -151,6 +154,9 @@ def parse_allow_comments(text: str, known_rules: Collection[str]) -> tuple[dict[
             problems.append(f"line {row}: allow comment for {', '.join(rules)} has no reason (expected {_USAGE})")
             continue
         for r in rules:
+            if renamed and r in renamed:
+                problems.append(f"line {row}: {renamed_note(r, renamed[r])}")
+                r = renamed[r]
             if r not in known_rules:
                 problems.append(f"line {row}: {_unknown(r, known_rules)}")
                 continue
@@ -159,7 +165,7 @@ def parse_allow_comments(text: str, known_rules: Collection[str]) -> tuple[dict[
 
 
 def notebook_allow_comments(
-    path: str, notebook_text: str, known_rules: Collection[str]
+    path: str, notebook_text: str, known_rules: Collection[str], renamed: Mapping[str, str] | None = None
 ) -> tuple[dict[str, dict[int, list[Allow]]], list[str]]:
     """Allow comments of every code cell of a notebook, keyed by :func:`allow_key` ``(path, cell)``.
 
@@ -175,7 +181,7 @@ def notebook_allow_comments(
     out: dict[str, dict[int, list[Allow]]] = {}
     problems: list[str] = []
     for cell in cells:
-        allows, cell_problems = parse_allow_comments(cell.source, known_rules)
+        allows, cell_problems = parse_allow_comments(cell.source, known_rules, renamed)
         if allows:
             out[allow_key(path, cell.number)] = allows
         problems.extend(f"cell {cell.number}, {p}" for p in cell_problems)
@@ -216,8 +222,11 @@ def _entry(data: Any, n: int, path: str) -> Entry:
     return Entry(message=message, **values)
 
 
-def load_accepted(path: str | os.PathLike[str]) -> list[Entry]:
+def load_accepted(path: str | os.PathLike[str], renamed: Mapping[str, str] | None = None) -> list[Entry]:
     """Read the accepted-findings file; a missing file accepts nothing.
+
+    ``renamed`` maps former rule ids to current ones: such entries are read under the current id
+    (fingerprints are built from a rule's first id, so they still match).
 
     Raises
     ------
@@ -242,11 +251,13 @@ def load_accepted(path: str | os.PathLike[str]) -> list[Entry]:
     entries = data.get("accepted")
     if not isinstance(entries, list):
         raise AcceptedFileError(f"{p}: 'accepted' must be a list (got {type(entries).__name__})")
-    return [_entry(e, n, str(p)) for n, e in enumerate(entries, start=1)]
+    read = [_entry(e, n, str(p)) for n, e in enumerate(entries, start=1)]
+    return [dataclasses.replace(e, rule=renamed[e.rule]) if renamed and e.rule in renamed else e for e in read]
 
 
 def write_accepted(
-    findings: Iterable[Finding], path: str | os.PathLike[str], *, reason: str = DEFAULT_REASON
+    findings: Iterable[Finding], path: str | os.PathLike[str], *, reason: str = DEFAULT_REASON,
+    renamed: Mapping[str, str] | None = None,
 ) -> list[Entry]:
     """Write today's findings as the accepted-findings file (what ``figproof accept`` does).
 
@@ -261,7 +272,7 @@ def write_accepted(
     """
     p = Path(path)
     kept: dict[tuple[str, str, str], list[str]] = {}
-    for e in load_accepted(p):
+    for e in load_accepted(p, renamed):
         kept.setdefault(e.key(), []).append(e.reason)
     entries = []
     for f in sorted(findings, key=Finding.sort_key):

@@ -44,7 +44,7 @@ def _finding(r: Rule, hit: Hit, *, fallback: Source, figure: str | None, severit
         axes=hit.axes,
         message=hit.message,
         help=r.summary,
-        fingerprint=fingerprint(r.id, src.path, figure, hit.axes, hit.key or hit.message),
+        fingerprint=fingerprint(r.fingerprint_id, src.path, figure, hit.axes, hit.key or hit.message),
     )
 
 

@@ -49,9 +49,15 @@ class Rule:
     bad: str
     good: str
     check: Callable[..., Iterator[Hit]] = field(repr=False)
+    former_ids: tuple[str, ...] = ()  # ids this rule had before, oldest first; still accepted, with a note
 
     def defaults(self) -> dict[str, float]:
         return {k.name: k.default for k in self.knobs}
+
+    @property
+    def fingerprint_id(self) -> str:
+        """The id fingerprints are built from: the first id the rule had, so a rename keeps accepted findings."""
+        return self.former_ids[0] if self.former_ids else self.id
 
 
 def rule(
@@ -66,6 +72,7 @@ def rule(
     good: str,
     scope: str = "figure",
     knobs: tuple[Knob, ...] = (),
+    former_ids: tuple[str, ...] = (),
 ) -> Callable[[Callable[..., Iterator[Hit]]], Rule]:
     """Turn a check function into a :class:`Rule`; its docstring's first line is the summary."""
     if severity not in SEVERITIES:
@@ -91,6 +98,7 @@ def rule(
             bad=inspect.cleandoc(bad) + "\n",
             good=inspect.cleandoc(good) + "\n",
             check=fn,
+            former_ids=former_ids,
         )
 
     return wrap
@@ -108,4 +116,9 @@ def pct(part: int, whole: int) -> str:
     return counted(part, whole)
 
 
-__all__ = ["Knob", "Knobs", "Rule", "counted", "pct", "rule"]
+def renamed_ids(catalogue: Mapping[str, Rule]) -> dict[str, str]:
+    """Former rule id → current id, over a catalogue."""
+    return {old: r.id for r in catalogue.values() for old in r.former_ids}
+
+
+__all__ = ["Knob", "Knobs", "Rule", "counted", "pct", "renamed_ids", "rule"]

@@ -506,7 +506,7 @@ def box_hides_modes(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
 
 
 # --------------------------------------------------------------------------
-# errorbars-sem
+# errorbars-ambiguous
 # --------------------------------------------------------------------------
 
 # Families of what an error bar can show; a bar's type is the set of families whose half-lengths match.
@@ -589,7 +589,8 @@ def _family(labels: tuple[str, ...]) -> str:
 
 
 @rule(
-    "errorbars-sem",
+    "errorbars-ambiguous",
+    former_ids=("errorbars-sem",),  # renamed in 0.x: the rule reports SD, CI and percentile bars too
     severity="note",
     confidence="certain",
     why="""
@@ -658,7 +659,7 @@ def _family(labels: tuple[str, ...]) -> str:
         fig.savefig("wells.png")
     """,
 )
-def errorbars_sem(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
+def errorbars_ambiguous(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
     """What the error bars show (SD, SEM, CI or percentile interval), and SEM bars on small groups without points."""
     rtol, boot_rtol = float(knobs["rtol"]), float(knobs["bootstrap_rtol"])
     small, share = int(knobs["small_n"]), float(knobs["shown_share"])
@@ -737,4 +738,4 @@ def _errorbar_hits(ax: Axes, k: int, eb: ErrorBars, recorded: list[Group], half:
               key=f"errorbars:{k}")
 
 
-RULES = (dots_binned, summary_hides_small_n, box_hides_modes, errorbars_sem)
+RULES = (dots_binned, summary_hides_small_n, box_hides_modes, errorbars_ambiguous)
