@@ -258,7 +258,7 @@ def test_corrupt_cached_run_record_is_a_miss(repo: Path) -> None:
     entry = repo / ".figproof-cache" / "runs" / entry_name(TASK.script)
     (entry / "artifact" / "run.json").write_text("not json")
     runner.answered.clear()
-    run = runner.run(TASK, options_for(repo))
+    runner.run(TASK, options_for(repo))
     assert inner.calls == 2 and not runner.answered
     assert hit(runner, TASK, options_for(repo))
 
@@ -368,7 +368,7 @@ def test_environment_fingerprint_matches_the_packages_and_imports_no_matplotlib(
 
     env = environment_key()
     assert env["numpy"] == numpy.__version__  # the package's own version attribute
-    assert env["python"] == "%d.%d.%d" % sys.version_info[:3]
+    assert env["python"] == "{}.{}.{}".format(*sys.version_info[:3])
     code = ("import sys, figproof.run.cache as c; c.environment_key(); "
             "print('matplotlib' in sys.modules, 'pandas' in sys.modules)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)

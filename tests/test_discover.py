@@ -130,7 +130,7 @@ def test_include_that_matches_nothing_names_the_pattern(tmp_path: Path) -> None:
     with pytest.raises(DiscoveryError, match=r"include pattern 'figs/\*\.py' matches no \.py or \.ipynb file"):
         discover(Config(root=root, include=("figures/*.py", "figs/*.py")))
     # Hidden and environment folders stay out even for an explicit pattern.
-    with pytest.raises(DiscoveryError, match="'.venv/"):
+    with pytest.raises(DiscoveryError, match=r"'\.venv/"):
         discover(Config(root=root, include=(".venv/**/*.py",)))
 
 
@@ -141,7 +141,7 @@ def test_order_runs_first_even_when_it_draws_nothing(tmp_path: Path) -> None:
     assert inv.scripts[:3] == ("prep/make_data.py", "notebooks/fig2.ipynb", "figures/growth.py")
     assert len(inv.scripts) == len(set(inv.scripts)) == 10
     assert list(inv.scripts[3:]) == sorted(inv.scripts[3:])
-    with pytest.raises(DiscoveryError, match="order entry 'prep/missing.py' is not a file"):
+    with pytest.raises(DiscoveryError, match=r"order entry 'prep/missing\.py' is not a file"):
         discover(Config(root=root, order=("prep/missing.py",)))
 
 

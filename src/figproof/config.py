@@ -67,7 +67,7 @@ class RuleSettings(NamedTuple):
     """
 
     severity: str | None = None
-    knobs: dict[str, float] = {}  # shared default, never mutated: the loader builds a fresh dict per rule
+    knobs: dict[str, float] = {}  # noqa: RUF012 - shared default, never mutated: the loader builds a fresh dict per rule
 
 
 def _cpu_count() -> int:
@@ -285,7 +285,8 @@ def _rule_settings(
                     continue
                 if key not in by_toml:
                     known = ["severity", *by_toml]
-                    raise _Bad(_unknown("knob", key, known) if by_toml else f"unknown knob {key!r} (this rule has no knobs)")
+                    raise _Bad(_unknown("knob", key, known) if by_toml
+                               else f"unknown knob {key!r} (this rule has no knobs)")
                 spec = by_toml[key]
                 if not _is_number(value) or not math.isfinite(value):
                     raise _Bad(f"{key!r} must be a number (got {_show(value)})")

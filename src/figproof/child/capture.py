@@ -211,7 +211,8 @@ def _system_prefixes() -> tuple[str, ...]:
     import tempfile
 
     roots = {sys.prefix, sys.base_prefix, sys.exec_prefix, tempfile.gettempdir()}
-    return (*tuple(sorted(r.rstrip(os.sep) + os.sep for r in roots if r)), "/dev/", "/proc/", "/sys/", "/etc/", "/usr/", "/lib/", "/lib64/", "/var/lib/")
+    system = ("/dev/", "/proc/", "/sys/", "/etc/", "/usr/", "/lib/", "/lib64/", "/var/lib/")
+    return (*tuple(sorted(r.rstrip(os.sep) + os.sep for r in roots if r)), *system)
 
 
 _SYSTEM = _system_prefixes()

@@ -17,7 +17,8 @@ from pathlib import Path
 from typing import Any
 
 PRELOAD = ("numpy", "pandas", "matplotlib", "matplotlib.pyplot", "matplotlib.backends.backend_agg", "PIL.Image",
-           "PIL.PngImagePlugin", "figproof.child.capture", "figproof.child.extract", "figproof.model.records", "figproof.child.main",
+           "PIL.PngImagePlugin", "figproof.child.capture", "figproof.child.extract", "figproof.model.records",
+           "figproof.child.main",
            "nbformat", "resource", "runpy", "pkgutil")
 
 

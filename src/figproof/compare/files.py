@@ -371,7 +371,8 @@ def _compare_vector(committed: Path, regenerated: Path) -> dict[str, Any]:
                     "message": f"the {label} file is over {MAX_VECTOR_BYTES // 2**20} MB or cannot be read"}
         problem = _vector_problem(data, suffix)
         if problem:
-            return {"status": f"unreadable-{label}", "message": f"the {label} file is not a valid {suffix[1:]}: {problem}"}
+            return {"status": f"unreadable-{label}",
+                    "message": f"the {label} file is not a valid {suffix[1:]}: {problem}"}
         raw.append(data)
     versions = {"committed_version": recorded_version(committed, raw[0]),
                 "regenerated_version": recorded_version(regenerated, raw[1])}

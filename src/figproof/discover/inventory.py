@@ -33,9 +33,13 @@ from figproof.notebook import MATPLOTLIB_MAGIC, Cell, NotebookError, code_cells,
 
 SCRIPT_SUFFIXES = (".py", ".ipynb")
 DATA_SUFFIXES = frozenset(
-    [".csv", ".tsv", ".txt", ".dat", ".tab", ".xlsx", ".xls", ".xlsm", ".ods", ".json", ".jsonl", ".ndjson", ".parquet", ".feather", ".arrow", ".npy", ".npz", ".h5", ".hdf5", ".hdf", ".he5", ".nc", ".mat", ".pkl", ".pickle", ".sav", ".dta", ".xpt", ".sas7bdat", ".fits", ".fit", ".zip"]
+    [".csv", ".tsv", ".txt", ".dat", ".tab", ".xlsx", ".xls", ".xlsm", ".ods", ".json", ".jsonl", ".ndjson",
+     ".parquet", ".feather", ".arrow", ".npy", ".npz", ".h5", ".hdf5", ".hdf", ".he5", ".nc", ".mat", ".pkl",
+     ".pickle", ".sav", ".dta", ".xpt", ".sas7bdat", ".fits", ".fit", ".zip"]
 )
-FIGURE_SUFFIXES = frozenset([".png", ".svg", ".svgz", ".pdf", ".jpg", ".jpeg", ".tif", ".tiff", ".eps", ".ps", ".gif", ".webp"])
+FIGURE_SUFFIXES = frozenset(
+    [".png", ".svg", ".svgz", ".pdf", ".jpg", ".jpeg", ".tif", ".tiff", ".eps", ".ps", ".gif", ".webp"]
+)
 # A compressed data file (results.csv.gz) is read by pandas and numpy as the inner format.
 _COMPRESSION = frozenset([".gz", ".bz2", ".xz", ".zst"])
 
@@ -49,7 +53,9 @@ TEST_DIRS = frozenset({"tests", "test"})
 # Figure files under these top folders are documentation or test fixtures, not the paper's figures.
 NON_FIGURE_DIRS = ("docs", "doc", "tests", "test")
 # Text files that are project metadata rather than data.
-_NOT_DATA = re.compile(r"^(requirements.*|constraints.*|license.*|licence.*|readme.*|changelog.*|cmakelists)\.txt$", re.I)
+_NOT_DATA = re.compile(
+    r"^(requirements.*|constraints.*|license.*|licence.*|readme.*|changelog.*|cmakelists)\.txt$", re.I
+)
 
 _FALLBACK_IMPORT = re.compile(
     r"^[ \t]*(?:import|from)[ \t]+(?:matplotlib|pylab|mpl_toolkits|seaborn|plotnine|pandas\.plotting)\b"

@@ -66,7 +66,8 @@ def _load(text: str, n: int | str) -> dict[str, Any]:
     if not isinstance(data, dict):
         raise ShardError(f"report {n}: expected a figproof JSON report (an object)")
     if data.get("schema") != REPORT_SCHEMA:
-        raise ShardError(f"report {n}: report schema {data.get('schema')!r}, this figproof merges schema {REPORT_SCHEMA}")
+        raise ShardError(f"report {n}: report schema {data.get('schema')!r}, "
+                         f"this figproof merges schema {REPORT_SCHEMA}")
     for key, kind in (("scripts", list), ("findings", list), ("summary", dict)):
         if not isinstance(data.get(key), kind):
             raise ShardError(f"report {n}: '{key}' must be a {kind.__name__}")
@@ -79,7 +80,8 @@ def _same(reports: list[dict[str, Any]], key: str) -> Any:
     values = [r.get(key) for r in reports]
     for n, v in enumerate(values[1:], start=2):
         if v != values[0]:
-            raise ShardError(f"report {n}: '{key}' is {v!r} but report 1 has {values[0]!r}; merge reports of one check only")
+            raise ShardError(f"report {n}: '{key}' is {v!r} but report 1 has {values[0]!r}; "
+                             "merge reports of one check only")
     return values[0]
 
 
@@ -87,7 +89,8 @@ def _finding_order(f: Any) -> tuple[str, int, str, str]:
     if not isinstance(f, dict):
         return ("", 0, "", "")
     line = f.get("line")
-    return (str(f.get("path", "")), line if isinstance(line, int) else 0, str(f.get("rule", "")), str(f.get("message", "")))
+    return (str(f.get("path", "")), line if isinstance(line, int) else 0,
+            str(f.get("rule", "")), str(f.get("message", "")))
 
 
 def _figures(scripts: list[Any], reports: list[dict[str, Any]]) -> int:

@@ -284,7 +284,8 @@ def colours_confusable_cvd(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
                 continue
             normal_ab = float(ab[0, i, j])
             if normal_ab >= knobs["hue_chroma"]:
-                lost = [(float(ab[k, i, j]), v) for k, v in enumerate(cs.VISIONS) if k and ab[k, i, j] < knobs["hue_lost"]]
+                lost = [(float(ab[k, i, j]), v) for k, v in enumerate(cs.VISIONS)
+                        if k and ab[k, i, j] < knobs["hue_lost"]]
                 if lost:
                     value, v = min(lost)
                     yield Hit(message=f"{names} keep only their lightness difference under simulated {v} vision: "
@@ -357,9 +358,9 @@ def colours_confusable_gray(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
             gap = float(abs(lstar[i] - lstar[j]))
             if gap < limit:
                 a, b = g.series[i], g.series[j]
-                yield Hit(message=f"{series_name(a, g.hexes[i])} and {series_name(b, g.hexes[j])} have CIE L* {lstar[i]:.1f} "
-                                  f"and {lstar[j]:.1f} (difference {gap:.1f}, below {limit:g}) and look alike in "
-                                  f"grayscale",
+                yield Hit(message=f"{series_name(a, g.hexes[i])} and {series_name(b, g.hexes[j])} have CIE L* "
+                                  f"{lstar[i]:.1f} and {lstar[j]:.1f} (difference {gap:.1f}, below {limit:g}) and "
+                                  f"look alike in grayscale",
                           source=b.source or a.source, axes=g.axes, key=f"{g.hexes[i]}/{g.hexes[j]}")
 
 

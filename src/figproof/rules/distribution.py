@@ -229,7 +229,7 @@ def _binned_hit(ax: Axes, axis: str, key: str, values: np.ndarray, source: Sourc
     log = " (log10)" if (ax.x if axis == "x" else ax.y).scale == "log" else ""
     fact = (f"the {axis} values{log} of {values.size} points take only {lattice.distinct} distinct values, "
             f"on a lattice of step {fmt(lattice.step)}")
-    for name, path, col in columns:
+    for _name, _path, col in columns:
         if _affine_equal(values, col):
             return None  # the plotted values are the measured ones: truly discrete data
     for name, path, col in columns:

@@ -339,8 +339,8 @@ def points_hidden(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
             if severity is not None:
                 how = "nearest-neighbour" if ov.exact else "grid-occupancy estimate"
                 dup_text = f", {dups} of them duplicates within {k['duplicate_px']:g} px" if dups else ""
-                yield Hit(message=(f"{counted(hidden, m, 'marker', 'markers')} overlap a neighbour closer than the marker radius "
-                                   f"({float(np.median(radius)):.1f} px){dup_text} ({how})"),
+                yield Hit(message=(f"{counted(hidden, m, 'marker', 'markers')} overlap a neighbour closer than the "
+                                   f"marker radius ({float(np.median(radius)):.1f} px){dup_text} ({how})"),
                           source=ps.source, axes=ax.index, severity="error" if severity == "error" else None,
                           confidence="certain" if ov.exact else "likely", key=f"points:{i}:overlap")
 
@@ -364,8 +364,8 @@ def points_hidden(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
             faint &= ~ov.hidden
             f = int(faint.sum())
             if f:
-                yield Hit(message=(f"{counted(f, m, 'marker', 'markers')} are nearly invisible: blended over the background "
-                                   f"(lowest opacity {lowest_alpha:.2g}) they differ from it by less than "
+                yield Hit(message=(f"{counted(f, m, 'marker', 'markers')} are nearly invisible: blended over the "
+                                   f"background (lowest opacity {lowest_alpha:.2g}) they differ from it by less than "
                                    f"ΔE' {k['faint_delta_e']:g}"),
                           source=ps.source, axes=ax.index, confidence="certain", key=f"points:{i}:faint")
 

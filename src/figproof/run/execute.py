@@ -194,7 +194,8 @@ def run_contained(task: Task, options: Options, launch: LaunchFn, mode: str) -> 
         out.mkdir(parents=True)
     except OSError as exc:
         if is_environment_error(exc):
-            raise EnvironmentProblem(describe_os_error(exc, options.artifacts, f"keep the run of {task.script}"))
+            problem = describe_os_error(exc, options.artifacts, f"keep the run of {task.script}")
+            raise EnvironmentProblem(problem) from exc
         raise
     pool = options.sandboxes or SandboxPool(options.root, options.skip_copy, reuse=False)
     box = pool.acquire()
@@ -211,7 +212,7 @@ def run_contained(task: Task, options: Options, launch: LaunchFn, mode: str) -> 
             spec_path.write_text(json.dumps(spec), encoding="utf-8")
         except OSError as exc:
             if is_environment_error(exc):
-                raise EnvironmentProblem(describe_os_error(exc, box.base.parent, f"prepare {task.script}"))
+                raise EnvironmentProblem(describe_os_error(exc, box.base.parent, f"prepare {task.script}")) from exc
             raise
         # an overlay's folders exist only inside the child once it has mounted it: start beside the mount point
         job = Launch(spec=spec_path, cwd=cwd if box.method != "overlay" else box.launch_folder,
@@ -260,10 +261,10 @@ class FreshInterpreter:
     def _launch(self, job: Launch, timeout: float) -> tuple[int | None, bool]:
         timed_out = False
         try:
-            so, se = open(job.stdout, "wb"), open(job.stderr, "wb")
+            so, se = open(job.stdout, "wb"), open(job.stderr, "wb")  # noqa: SIM115 - closed by the with below
         except OSError as exc:
             if is_environment_error(exc):
-                raise EnvironmentProblem(describe_os_error(exc, job.stdout.parent, "keep a script's output"))
+                raise EnvironmentProblem(describe_os_error(exc, job.stdout.parent, "keep a script's output")) from exc
             raise
         with so, se:
             with self._lock:
@@ -275,7 +276,8 @@ class FreshInterpreter:
                                             env=job.env, start_new_session=True)
                 except OSError as exc:
                     if is_environment_error(exc):
-                        raise EnvironmentProblem(describe_os_error(exc, job.cwd, "start a process for a script"))
+                        problem = describe_os_error(exc, job.cwd, "start a process for a script")
+                        raise EnvironmentProblem(problem) from exc
                     raise
                 self._live.add(proc)
             try:
