@@ -18,7 +18,7 @@ from figproof.compare.files import OutputComparison, compare_output
 from figproof.model.context import Inventory, RunContext
 from figproof.model.findings import Hit
 from figproof.model.records import FileEvent, ScriptRun, Source
-from figproof.rules import reproduce
+from figproof.rules import knob_value, reproduce
 from figproof.rules.base import Rule
 from tests.builders import axes, errorbars, figure, points, run, src
 
@@ -67,12 +67,18 @@ def test_drift_environment_differs_is_reported_apart() -> None:
     assert found[0].key.endswith(":environment")
 
 
-def test_drift_tolerance_knob() -> None:
-    r = run(path="fig.py", events=(save("figures/growth.png"),))
-    context = ctx(r, comparisons={"figures/growth.png": drift(rms=0.4)})
-    assert hits(reproduce.figure_drift, r, context, tolerance=0.5) == []
-    assert len(hits(reproduce.figure_drift, r, context, tolerance=0.3)) == 1
-    assert len(hits(reproduce.figure_drift, r, context, tolerance=float("nan"))) == 1  # odd knob: exact
+def test_drift_tolerance_knob_reaches_the_comparison(tmp_path: Path) -> None:
+    # the knob is applied once, where the images are compared: read from the config, else the rule's default
+    a = np.zeros((20, 20, 3), np.uint8)
+    b = a.copy()
+    b[0, 0] = 40  # RMS over all channels: sqrt(3 * 40**2 / 1200) = 2.0
+    committed, regenerated = tmp_path / "c.png", tmp_path / "r.png"
+    Image.fromarray(a).save(committed)
+    Image.fromarray(b).save(regenerated)
+    for configured, status in (({}, "drift"), ({"figure-drift": (None, {"tolerance": 2.5})}, "same"),
+                               ({"figure-drift": (None, {"tolerance": 1.5})}, "drift")):
+        tolerance = knob_value(configured, "figure-drift", "tolerance")
+        assert compare_output(committed, regenerated, tolerance=tolerance).status == status
 
 
 def test_drift_size_mismatch_and_unreadable() -> None:

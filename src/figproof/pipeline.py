@@ -206,8 +206,7 @@ class _Lazy:
 def build_context(config: Config, inventory: Inventory, runs: tuple[ScriptRun, ...], artifacts: Path,
                   second: tuple[Path, list[ScriptRun]] | None) -> RunContext:
     """Everything run-scope rules need: comparisons with committed files and, with --twice, the second run."""
-    drift = config.rules.get("figure-drift")
-    tolerance = float(drift.knobs.get("tolerance", 0.0)) if drift is not None else 0.0
+    tolerance = rules.knob_value(config.rules, "figure-drift", "tolerance")
     second_runs: dict[str, ScriptRun] = {}
     reruns: dict = {}
     if second is not None:

@@ -25,6 +25,7 @@ from figproof.model.records import ScriptRun
 from figproof.pipeline import Checked
 from figproof.report import github, gitlab, markdown, sarif
 from figproof.report import json as json_report
+from figproof.rules import knob_value
 
 
 def _write(path: Path, text: str) -> None:
@@ -134,8 +135,7 @@ def write_images(checked: Checked, folder: Path, relative_to: Path | None) -> di
     for f in checked.result.findings:
         if f.figure and f.accepted is None:
             by_figure.setdefault(f.figure, set()).add(f.rule)
-    severity = checked.config.rules.get("colours-confusable-cvd")
-    cvd = float(severity.knobs.get("cvd_severity", 100.0)) if severity is not None else 100.0
+    cvd = knob_value(checked.config.rules, "colours-confusable-cvd", "cvd_severity")
     links: dict[str, str] = {}
     for run in checked.result.runs:
         for fig in run.figures:

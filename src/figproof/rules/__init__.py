@@ -24,6 +24,17 @@ def by_id() -> dict[str, Rule]:
     return {r.id: r for r in RULES}
 
 
+def knob_value(settings: Mapping[str, tuple[str | None, Mapping[str, float]]], rule_id: str, name: str) -> float:
+    """A rule's knob as configured, else the rule's own default (the one place a default is written).
+
+    For the few knobs used outside their rule: the drift tolerance applied when images are compared,
+    the simulated colour-vision severity of the report's panels.
+    """
+    default = {k.name: k.default for k in by_id()[rule_id].knobs}[name]
+    chosen = settings.get(rule_id)
+    return float(chosen[1].get(name, default)) if chosen is not None else default
+
+
 def fingerprint(rule_id: str, path: str, figure: str | None, axes: int | None, key: str) -> str:
     """A finding's identity that survives unrelated edits (no line number in it)."""
     text = "\x1f".join([rule_id, path, figure or "", "" if axes is None else str(axes), key])
@@ -75,4 +86,4 @@ def apply(
     return sorted(found, key=Finding.sort_key)
 
 
-__all__ = ["RULES", "apply", "by_id", "fingerprint"]
+__all__ = ["RULES", "apply", "by_id", "fingerprint", "knob_value"]

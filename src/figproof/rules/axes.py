@@ -13,7 +13,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from figproof.model.findings import Hit
+from figproof.model.findings import Confidence, Hit, Severity
 from figproof.model.records import Axes, Axis, FigureModel, Line, PointSet, Source
 from figproof.rules.base import Knob, Knobs, counted, rule
 
@@ -349,8 +349,8 @@ def axis_clips_data(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
                                   for (name, code), n in ranked)
                 message = f"{head} lie outside the view limits and are not drawn ({parts})"
             first = int(fam.mark[np.flatnonzero(cut)[0]])
-            severity: str | None = None
-            confidence: str | None = None
+            severity: Severity | None = None
+            confidence: Confidence | None = None
             if fam.monotonic_x:
                 # a line series cut only along x is usually a chosen window, not hidden data
                 cut_marks = set(fam.mark[cut].tolist())
@@ -569,7 +569,7 @@ def axis_empty_span(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
             continue
         lo, hi, _, _ = lims
         dmin, dmax = _from_fraction(fmin, axis), _from_fraction(fmax, axis)
-        confidence: str | None = None
+        confidence: Confidence | None = None
         zero_note = ""
         if axis.scale == "linear" and lo <= 0.0 <= hi and not dmin <= 0.0 <= dmax:
             zero_side_gap = fmin if dmin > 0 else 1.0 - fmax
@@ -577,7 +577,7 @@ def axis_empty_span(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
                 confidence = "likely"
                 zero_note = ", most of it between the data and zero"
         marks = _marks_in_gap(ax, which, axis, fmin, fmax)
-        severity = "note" if marks else None
+        severity: Severity | None = "note" if marks else None
         gap_note = f"; {marks[0]} lies in the empty part" if marks else ""
         source = next((m.source for m in (*ax.points, *ax.lines, *ax.boxes, *ax.violins, *ax.errorbars)
                        if m.source is not None), None)

@@ -7,7 +7,7 @@ from collections.abc import Iterator
 
 import numpy as np
 
-from figproof.model.findings import Hit
+from figproof.model.findings import Confidence, Hit, Severity
 from figproof.model.records import Axes, BarSet, FigureModel, LoadedTable
 from figproof.rules.base import Knob, Knobs, rule
 
@@ -182,7 +182,8 @@ def _may_summarise(ax: Axes, bars: BarSet) -> bool:
 def _judge(figure: FigureModel, ax: Axes, sets: list[BarSet], knobs: Knobs) -> Hit:
     heights = np.concatenate([b.heights[np.isfinite(b.heights)] for b in sets])
     evidence: list[str] = []
-    confidence, severity = "possible", "note"
+    confidence: Confidence = "possible"
+    severity: Severity | None = "note"
     rtol = float(knobs["mean_rtol"])
     matched = next((m for m in (_group_means(t, heights, rtol) for t in figure.tables) if m), None)
     matched = matched or _sample_means(figure, heights, rtol)

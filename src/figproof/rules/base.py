@@ -11,7 +11,7 @@ import inspect
 from collections.abc import Callable, Iterator, Mapping
 from dataclasses import dataclass, field
 
-from figproof.model.findings import CONFIDENCES, SEVERITIES, Hit
+from figproof.model.findings import CONFIDENCES, SEVERITIES, Confidence, Hit, Severity
 
 Knobs = Mapping[str, float]
 
@@ -42,8 +42,8 @@ class Rule:
     why: str
     fix: str
     sources: tuple[str, ...]
-    severity: str
-    confidence: str
+    severity: Severity
+    confidence: Confidence
     scope: str
     knobs: tuple[Knob, ...]
     bad: str
@@ -63,8 +63,8 @@ class Rule:
 def rule(
     id: str,
     *,
-    severity: str,
-    confidence: str,
+    severity: Severity,
+    confidence: Confidence,
     why: str,
     fix: str,
     sources: tuple[str, ...],

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from figproof.model.findings import Hit
+from figproof.model.findings import Confidence, Hit, Severity
 from figproof.model.records import Axes, Box, ErrorBars, FigureModel, Source, Violin
 from figproof.rules._observations import (
     Group,
@@ -373,15 +373,15 @@ def summary_hides_small_n(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
         if not rectilinear(ax):
             continue
         half = half_width(_positions(ax))
-        found: dict[tuple[str, str], list[tuple[_Summary, int, str]]] = {}
+        found: dict[tuple[str, Severity, Confidence], list[tuple[_Summary, int, Confidence]]] = {}
         for s in _summaries(figure, ax):
             if s.n is None or s.n <= 0 or s.n >= note_n:
                 continue
             drawn = shown(ax, s.values, s.n, s.position, half, s.vertical, s.fliers)
             if drawn >= share * s.n:
                 continue
-            severity = "warning" if s.n < small else "note"
-            confidence = "certain" if s.n < 5 else "likely" if s.n < small else "possible"
+            severity: Severity = "warning" if s.n < small else "note"
+            confidence: Confidence = "certain" if s.n < 5 else "likely" if s.n < small else "possible"
             if s.inferred:  # n came from matching a bar height to a loaded group's mean
                 confidence = "likely" if confidence == "certain" else "possible"
             found.setdefault((s.kind, severity, confidence), []).append((s, drawn, confidence))
@@ -390,7 +390,7 @@ def summary_hides_small_n(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
             yield _small_n_hit(ax, kind, severity, sorted(items, key=lambda item: item[0].position))
 
 
-def _small_n_hit(ax: Axes, kind: str, severity: str, items: list[tuple[_Summary, int, str]]) -> Hit:
+def _small_n_hit(ax: Axes, kind: str, severity: Severity, items: list[tuple[_Summary, int, Confidence]]) -> Hit:
     confidence = items[0][2]
     first = items[0][0]
     if len(items) == 1:
@@ -728,12 +728,12 @@ def _errorbar_hits(ax: Axes, k: int, eb: ErrorBars, recorded: list[Group], half:
     if ambiguous_group:
         parts.append(f"{ambiguous_group} centre on more than one recorded group with different answers")
     message = "error bars: " + "; ".join(parts)
-    severity = None
+    severity: Severity | None = None
     if sem_hidden:
         severity = "warning"
         message += (f"; {len(sem_hidden)} SEM bar{'s' if len(sem_hidden) > 1 else ''} on n < {small} "
                     f"without the points drawn")
-    confidence = "likely" if approximate or unmatched or ambiguous_group else "certain"
+    confidence: Confidence = "likely" if approximate or unmatched or ambiguous_group else "certain"
     yield Hit(message=message, source=eb.source, axes=ax.index, severity=severity, confidence=confidence,
               key=f"errorbars:{k}")
 

@@ -79,8 +79,7 @@ def _size_text(size: tuple[int, int] | None) -> str:
 # --------------------------------------------------------------------------
 
 
-def _drift_hit(c: OutputComparison, run: ScriptRun, source: Source | None, running: str,
-               tolerance: float) -> Hit | None:
+def _drift_hit(c: OutputComparison, run: ScriptRun, source: Source | None, running: str) -> Hit | None:
     what = f"{c.path}" if c.cell is None else f"the stored image {c.output or 0} of cell {c.cell}"
     made_with = c.committed_version
     now = running or c.regenerated_version or ""
@@ -89,8 +88,6 @@ def _drift_hit(c: OutputComparison, run: ScriptRun, source: Source | None, runni
                 f"so the environment differs and the figure may not be stale") if env else ""
     key = f"{c.path}#{c.cell}.{c.output}" if c.cell is not None else c.path
     if c.status == "drift":
-        if c.rms is not None and c.rms <= tolerance:
-            return None
         detail = _rms_text(c) or "its content differs after dropping dates and producer fields"
         if env:
             return Hit(message=f"{what} differs from what {run.path} draws now ({detail}){env_text}",
@@ -156,10 +153,11 @@ def _drift_hit(c: OutputComparison, run: ScriptRun, source: Source | None, runni
     good=_GOOD_PLOT,
 )
 def figure_drift(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator[Hit]:
-    """A committed figure file differs from what its script draws now."""
-    tolerance = float(knobs.get("tolerance", 0.0))
-    if not np.isfinite(tolerance) or tolerance < 0:
-        tolerance = 0.0
+    """A committed figure file differs from what its script draws now.
+
+    The ``tolerance`` knob is applied where the images are compared (the comparison calls a
+    difference within it "same"); the pipeline reads it with :func:`figproof.rules.knob_value`.
+    """
     for path, saves in _saves(run).items():
         last = saves[-1].source
         if len(saves) > 1:
@@ -171,11 +169,11 @@ def figure_drift(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator[
         c = context.comparisons.get(path)
         if c is None:
             continue
-        hit = _drift_hit(c, run, last, context.running_version, tolerance)
+        hit = _drift_hit(c, run, last, context.running_version)
         if hit is not None:
             yield hit
     for c in context.notebook_comparisons.get(run.path, ()):
-        hit = _drift_hit(c, run, Source(path=run.path, cell=c.cell), context.running_version, tolerance)
+        hit = _drift_hit(c, run, Source(path=run.path, cell=c.cell), context.running_version)
         if hit is not None:
             yield hit
 
