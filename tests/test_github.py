@@ -13,7 +13,7 @@ import re
 import pytest
 
 from figproof.model.findings import CheckResult, Finding, Summary
-from figproof.report.github import annotations, escape_data, escape_property
+from figproof.report.github import annotation_lines, escape_data, escape_property
 
 _LINE = re.compile(r"^::(?P<cmd>[a-z]+)(?: (?P<props>[^:]*))?::(?P<data>.*)$", re.DOTALL)
 
@@ -64,7 +64,7 @@ def test_escape_round_trip(text: str) -> None:
 
 def test_annotation_round_trip_with_awkward_path_and_message() -> None:
     f = _f(path="figs/dose, 10:1/plot %.py", message="50% of bars\nhide: the data, really", severity="error")
-    [line] = annotations(_result([f]))
+    [line] = annotation_lines(_result([f]))
     cmd, props, data = decode(line)
     assert cmd == "error"
     assert props == {"file": "figs/dose, 10:1/plot %.py", "line": "3", "title": "figproof points-hidden (likely)"}
@@ -72,7 +72,7 @@ def test_annotation_round_trip_with_awkward_path_and_message() -> None:
 
 
 def test_levels_and_notebooks() -> None:
-    lines = annotations(_result([
+    lines = annotation_lines(_result([
         _f(severity="note"), _f(severity="error", path="b.py"),
         _f(path="nb/fig2.ipynb", cell=5, line=2, severity="warning"),
         _f(accepted="published figure", accepted_by="file"),
@@ -86,7 +86,7 @@ def test_levels_and_notebooks() -> None:
 
 def test_cap_per_level_and_left_out_line() -> None:
     findings = [_f(severity="error", line=i) for i in range(1, 8)] + [_f(severity="note", line=i) for i in range(1, 4)]
-    lines = annotations(_result(findings), cap_per_level=5)
+    lines = annotation_lines(_result(findings), cap_per_level=5)
     decoded = [decode(line) for line in lines]
     assert sum(d[0] == "error" for d in decoded) == 5
     assert sum(d[0] == "notice" for d in decoded) == 4  # 3 notes + the summary line
@@ -98,4 +98,4 @@ def test_cap_per_level_and_left_out_line() -> None:
 
 
 def test_no_findings_no_lines() -> None:
-    assert annotations(_result([])) == []
+    assert annotation_lines(_result([])) == []

@@ -13,10 +13,15 @@ import sys
 import tempfile
 import textwrap
 import traceback
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from figproof import __version__
+
+if TYPE_CHECKING:
+    from figproof.model.records import ScriptRun
+    from figproof.pipeline import Checked
 
 
 class ExitCode(enum.IntEnum):
@@ -197,13 +202,13 @@ def _one_line_errors() -> tuple[type[Exception], ...]:
     return (ConfigError, DiscoveryError, AcceptedFileError, GitError, ShardError)
 
 
-def _progress(args: argparse.Namespace):
+def _progress(args: argparse.Namespace) -> Callable[[ScriptRun, int, int], None] | None:
     from figproof.report.write import progress_printer
 
     return progress_printer(quiet=args.quiet, verbose=getattr(args, "verbose", False))
 
 
-def do_check(path: Path, args: argparse.Namespace, **option_overrides: object):
+def do_check(path: Path, args: argparse.Namespace, **option_overrides: object) -> Checked:
     """Run the pipeline for ``path`` with the command line's options; returns a Checked."""
     from figproof.pipeline import CheckOptions, check
 

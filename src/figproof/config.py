@@ -28,10 +28,10 @@ from dataclasses import dataclass, field
 from datetime import date, datetime, time
 from importlib import resources
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, NamedTuple
+from typing import TYPE_CHECKING, Any, Literal, NamedTuple, cast
 
 from figproof.discover import gitrepo
-from figproof.model.findings import SEVERITIES, renamed_note
+from figproof.model.findings import SEVERITIES, Severity, renamed_note
 
 if TYPE_CHECKING:  # the catalogue is handed in, so loading a config never imports the rules
     from figproof.rules.base import Rule
@@ -66,7 +66,7 @@ class RuleSettings(NamedTuple):
     :func:`figproof.rules.apply`, which unpacks ``(severity, knobs)``.
     """
 
-    severity: str | None = None
+    severity: Severity | Literal["off"] | None = None
     knobs: dict[str, float] = {}  # noqa: RUF012 - shared default, never mutated: the loader builds a fresh dict per rule
 
 
@@ -275,13 +275,13 @@ def _rule_settings(
             raise ConfigError(shown, f"rule {rule_id!r} must be a table (got {_show(body)})", section=prefix)
         rule = catalogue[rule_id]
         by_toml = {k.name.replace("_", "-"): k for k in rule.knobs}
-        severity: str | None = None
+        severity: Severity | Literal["off"] | None = None
         knobs: dict[str, float] = {}
         for key in sorted(body):
             value = body[key]
             try:
                 if key == "severity":
-                    severity = _choice(key, value, RULE_SEVERITIES)
+                    severity = cast(Severity | Literal["off"], _choice(key, value, RULE_SEVERITIES))
                     continue
                 if key not in by_toml:
                     known = ["severity", *by_toml]

@@ -32,6 +32,7 @@ import sysconfig
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
+from types import FrameType
 from typing import Any, NamedTuple
 
 import numpy as np
@@ -150,7 +151,7 @@ class Recorder:
 
     def user_source(self, depth: int = 2) -> tuple[Source | None, str]:
         """First stack frame in the user's code, and which plotting library (if any) sits between."""
-        frame = sys._getframe(depth)
+        frame: FrameType | None = sys._getframe(depth)
         lib = ""
         while frame is not None:
             name = frame.f_code.co_filename
@@ -280,8 +281,8 @@ def install_io_hooks(rec: Recorder, *, network: bool) -> None:
 
         socket.socket.connect = refuse  # type: ignore[method-assign]
         socket.socket.connect_ex = refuse  # type: ignore[method-assign]
-        socket.create_connection = refuse  # type: ignore[assignment]
-        socket.getaddrinfo = lambda *a, **k: refuse(None, a[0] if a else "")  # type: ignore[assignment]
+        socket.create_connection = refuse
+        socket.getaddrinfo = lambda *a, **k: refuse(None, a[0] if a else "")
 
 
 # --------------------------------------------------------------------------
@@ -509,8 +510,8 @@ def _groups(data: Any) -> list[np.ndarray]:
             return [np.asarray(c, float)[:MAX_RECORDED_VALUES] for c in arr.T]
         seq = list(data)
         if seq and np.ndim(seq[0]) == 0:
-            arr = _as_array(seq)
-            return [arr] if arr is not None else []
+            flat = _as_array(seq)
+            return [flat] if flat is not None else []
         return [a for a in (_as_array(s) for s in seq) if a is not None]
     except Exception:  # noqa: BLE001
         return []
@@ -559,10 +560,10 @@ def install_matplotlib_hooks(rec: Recorder) -> None:
         if asked.lower() != "agg":
             rec.notes.append(f"the script asked for the {asked} backend; figproof kept Agg")
 
-    matplotlib.use = ignore_backend  # type: ignore[assignment]
-    plt.switch_backend = ignore_backend  # type: ignore[assignment]
-    plt.show = lambda *a, **k: None  # type: ignore[assignment]
-    plt.pause = lambda *a, **k: None  # type: ignore[assignment]
+    matplotlib.use = ignore_backend
+    plt.switch_backend = ignore_backend
+    plt.show = lambda *a, **k: None
+    plt.pause = lambda *a, **k: None
 
     Axes = matplotlib.axes.Axes
     Figure = matplotlib.figure.Figure

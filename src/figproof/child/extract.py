@@ -28,17 +28,22 @@ from figproof.model.records import (
     Axis,
     BarSet,
     Box,
+    ColorMappedKind,
     ColorMapping,
     ErrorBars,
     FigureModel,
     Line,
+    LineRole,
     LoadedTable,
     Patch,
+    PatchKind,
     PlotCall,
     PointSet,
+    Projection,
     Sample,
     Source,
     Text,
+    TextRole,
     Violin,
 )
 
@@ -64,6 +69,9 @@ def _rgba_array(values: Any, alpha: float | None = None) -> np.ndarray:
     return arr
 
 
+_PROJECTIONS: dict[str, Projection] = {"rectilinear": "rectilinear", "polar": "polar", "3d": "3d"}
+
+
 def _src(artist: Any) -> Source | None:
     return getattr(artist, "_figproof_source", None)
 
@@ -81,7 +89,7 @@ def _cmap_samples(cmap: Any) -> tuple[np.ndarray, int]:
     return samples, int(getattr(cmap, "N", CMAP_SAMPLES))
 
 
-def _mapping(kind: str, mappable: Any, shape: tuple[int, ...] = ()) -> ColorMapping:
+def _mapping(kind: ColorMappedKind, mappable: Any, shape: tuple[int, ...] = ()) -> ColorMapping:
     samples, n = _cmap_samples(mappable.get_cmap())
     norm = mappable.norm
     vmin = None if norm.vmin is None else float(norm.vmin)
@@ -229,7 +237,7 @@ class _AxesExtractor:
             if seg is not None:
                 seg_bars.append((*seg, ln))
                 continue
-            role = "data" if ln.get_transform() == self.ax.transData else "reference"
+            role: LineRole = "data" if ln.get_transform() == self.ax.transData else "reference"
             has_line = ln.get_linestyle() not in ("None", "", " ") and ln.get_linewidth() > 0
             if has_line or role == "reference":
                 self.lines.append(_line(self.ax, ln, role))
@@ -281,9 +289,9 @@ class _AxesExtractor:
                 self.scatter(coll)
             elif isinstance(coll, LineCollection):
                 continue
-            elif coll.get_array() is not None:
-                kind = "contour" if type(coll).__name__ == "ContourSet" else "mesh"
-                self.colormaps.append(_mapping(kind, coll, tuple(np.shape(coll.get_array()))))
+            elif (values := coll.get_array()) is not None:
+                kind: ColorMappedKind = "contour" if type(coll).__name__ == "ContourSet" else "mesh"
+                self.colormaps.append(_mapping(kind, coll, tuple(np.shape(values))))
             elif isinstance(coll, PolyCollection):
                 fc = coll.get_facecolor()
                 self.patches.append(Patch(
@@ -294,7 +302,7 @@ class _AxesExtractor:
                     draw_order=self.order.get(id(coll))))
 
     def scatter(self, coll: PathCollection) -> None:
-        offsets = np.ma.filled(np.ma.asarray(coll.get_offsets(), float), np.nan).reshape(-1, 2)
+        offsets: np.ndarray = np.ma.filled(np.ma.asarray(coll.get_offsets(), float), np.nan).reshape(-1, 2)
         transform = coll.get_offset_transform()
         display = transform.transform(offsets) if offsets.size else np.zeros((0, 2))
         data = _data_coords(self.ax, transform, offsets)
@@ -341,8 +349,11 @@ class _AxesExtractor:
 
     def text_marks(self) -> None:
         ax = self.ax
-        for role, t in (("title", ax.title), ("title", ax._left_title), ("title", ax._right_title),
-                        ("xlabel", ax.xaxis.label), ("ylabel", ax.yaxis.label)):
+        left, right = ax._left_title, ax._right_title  # type: ignore[attr-defined]  # matplotlib's title artists
+        marks: tuple[tuple[TextRole, MplText], ...] = (
+            ("title", ax.title), ("title", left), ("title", right), ("xlabel", ax.xaxis.label),
+            ("ylabel", ax.yaxis.label))
+        for role, t in marks:
             self.add_text(t, role, in_axes=False)
         for axis in (ax.xaxis, ax.yaxis):
             for tick in axis.get_major_ticks():
@@ -352,7 +363,7 @@ class _AxesExtractor:
             if self.attached(t):
                 self.add_text(t, "annotation", in_axes=True)
 
-    def add_text(self, t: MplText, role: str, *, in_axes: bool) -> None:
+    def add_text(self, t: MplText, role: TextRole, *, in_axes: bool) -> None:
         content = t.get_text()
         if not content.strip() or not t.get_visible():
             return
@@ -407,7 +418,7 @@ class _AxesExtractor:
         cbar = getattr(ax, "_colorbar", None)
         if cbar is not None and cbar.mappable is not None and cbar.mappable.get_cmap() is not None:
             self.colormaps.append(_mapping("colorbar", cbar.mappable))
-        projection = ax.name if ax.name in ("rectilinear", "polar", "3d") else "other"
+        projection = _PROJECTIONS.get(ax.name, "other")
         return Axes(index=self.index, display_box=_box(ax.bbox), projection=projection,
                     x=_axis(ax, "x"), y=_axis(ax, "y"), title=ax.get_title(), facecolor=_rgba(ax.get_facecolor()),
                     is_colorbar=cbar is not None, points=tuple(self.points), lines=tuple(self.lines),
@@ -459,14 +470,14 @@ def _edges(rects: list[Rectangle]) -> np.ndarray:
     return edges
 
 
-def _patch(p: Any, kind: str, renderer: Any, draw_order: int | None = None) -> Patch:
+def _patch(p: Any, kind: PatchKind, renderer: Any, draw_order: int | None = None) -> Patch:
     return Patch(kind=kind, display_box=_box(p.get_window_extent(renderer)), facecolor=_rgba(p.get_facecolor()),
                  edgecolor=_rgba(p.get_edgecolor()), zorder=float(p.get_zorder()), label=_label(p), source=_src(p),
                  draw_order=draw_order)
 
 
-def _line(ax: MplAxes, ln: Line2D, role: str) -> Line:
-    xy = np.ma.filled(np.ma.asarray(ln.get_xydata(), float), np.nan).reshape(-1, 2)
+def _line(ax: MplAxes, ln: Line2D, role: LineRole) -> Line:
+    xy: np.ndarray = np.ma.filled(np.ma.asarray(ln.get_xydata(), float), np.nan).reshape(-1, 2)
     display = ln.get_transform().transform(xy) if xy.size else np.zeros((0, 2))
     data = _data_coords(ax, ln.get_transform(), xy) if role == "data" else xy
     marker = ln.get_marker()
@@ -477,7 +488,7 @@ def _line(ax: MplAxes, ln: Line2D, role: str) -> Line:
 
 
 def _line_points(ax: MplAxes, ln: Line2D, draw_order: int | None = None) -> PointSet:
-    xy = np.ma.filled(np.ma.asarray(ln.get_xydata(), float), np.nan).reshape(-1, 2)
+    xy: np.ndarray = np.ma.filled(np.ma.asarray(ln.get_xydata(), float), np.nan).reshape(-1, 2)
     display = ln.get_transform().transform(xy) if xy.size else np.zeros((0, 2))
     data = _data_coords(ax, ln.get_transform(), xy)
     face = ln.get_markerfacecolor()
@@ -556,13 +567,13 @@ def extract_figure(fig: Figure, number: int, rec: Recorder, folder: Path | None,
     canvas = fig.canvas if isinstance(fig.canvas, FigureCanvasAgg) else FigureCanvasAgg(fig)
     render_path = folder / f"figure-{number}.png" if folder is not None and render else None
     renderer = draw_for_extraction(fig, canvas, already_drawn=id(fig) in rec.drawn, pixels=render_path is not None)
-    render = None
+    render_name = None
     if render_path is not None:
         from PIL import Image
 
         # fast compression: renders are scratch files for the image panels, not deliverables
         Image.fromarray(np.asarray(canvas.buffer_rgba())).save(render_path, compress_level=1)
-        render = render_path.name
+        render_name = render_path.name
     all_samples = [Sample(values=s.values, origin=s.origin, source=s.source) for s in rec.samples]
     axes_list = [ax for ax in fig.get_axes()]
     used: set[int] = set()
@@ -576,7 +587,8 @@ def extract_figure(fig: Figure, number: int, rec: Recorder, folder: Path | None,
     fig_texts = []
     extractor = _AxesExtractor(axes_list[0], 0, rec, renderer) if axes_list else None
     if extractor is not None:
-        for t in fig.texts + ([fig._suptitle] if getattr(fig, "_suptitle", None) is not None else []):
+        suptitle = getattr(fig, "_suptitle", None)
+        for t in fig.texts + ([suptitle] if suptitle is not None else []):
             extractor.add_text(t, "text", in_axes=False)
         fig_texts = extractor.texts
     inline = None
@@ -590,7 +602,7 @@ def extract_figure(fig: Figure, number: int, rec: Recorder, folder: Path | None,
     return FigureModel(id=f"{rec.script}#{number}", script=rec.script, number=number, dpi=float(fig.dpi),
                        size_px=(int(w), int(h)), facecolor=_rgba(fig.get_facecolor()), axes=tuple(models),
                        outputs=tuple(dict.fromkeys(rec.outputs.get(id(fig), []))), samples=samples, calls=calls,
-                       tables=tables, render=render, source=rec.figure_sources.get(id(fig)),
+                       tables=tables, render=render_name, source=rec.figure_sources.get(id(fig)),
                        texts=tuple(fig_texts), inline_render=inline)
 
 

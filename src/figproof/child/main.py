@@ -16,7 +16,10 @@ import time
 import traceback
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
+
+if TYPE_CHECKING:
+    from figproof.model.records import ErrorKind, RunStatus
 
 CAPTURE_LIMIT = 1 << 20  # bytes of the script's own stdout/stderr kept per stream
 
@@ -66,11 +69,11 @@ def _die_with_parent() -> None:
 def enter_view(spec: Spec) -> None:
     """Mount the overlay view of the repo when the sandbox is one (first thing: before threads, hooks or
     any confinement that forbids mounting); a refusal ends the child with the machine's exit status."""
-    if spec.view_method != "overlay" or os.path.ismount(spec.view["merged"]):
+    view = spec.view
+    if spec.view_method != "overlay" or view is None or os.path.ismount(view["merged"]):
         return  # a copy, or already entered (the warm pool enters before it re-reads the working folder)
     from figproof.child.view import enter_overlay
 
-    view = spec.view
     launched = os.getcwd()
     try:
         enter_overlay(view["lower"], view["upper"], view["work"], view["merged"])
@@ -163,7 +166,7 @@ def run_user_code(spec: Spec, rec: Any) -> Any:
         return ScriptError(kind="memory", type="MemoryError", message=str(exc)[:300],
                            source=_user_frame(exc.__traceback__, rec))
     except BaseException as exc:  # noqa: BLE001 - any failure of user code is reported, not raised
-        kind = "exception"
+        kind: ErrorKind = "exception"
         if isinstance(exc, EOFError) and "needs-input" in rec.notes:
             kind = "needs-input"
         message = str(exc).strip().splitlines()[0][:300] if str(exc).strip() else ""
@@ -212,10 +215,10 @@ def main(argv: list[str] | None = None) -> int:
     except OSError as exc:
         if exc.errno not in (28, 122):  # ENOSPC, EDQUOT: the run record could not be written
             raise
-        sys.__stderr__.write(f"{ENVIRONMENT_MARK}no space left to write the run record of {spec.script} in "
-                             f"{Path(spec.out).parent}; free some space or point TMPDIR at a folder with more "
-                             f"room\n")
-        sys.__stderr__.flush()
+        stream = sys.__stderr__ or sys.stderr
+        stream.write(f"{ENVIRONMENT_MARK}no space left to write the run record of {spec.script} in "
+                     f"{Path(spec.out).parent}; free some space or point TMPDIR at a folder with more room\n")
+        stream.flush()
         os._exit(ENVIRONMENT_EXIT)
 
 
@@ -266,7 +269,7 @@ def _finish(spec: Spec, rec: Any, error: Any, seconds: float, isolation: tuple[s
             notes.append(f"figure {number}: ran out of memory while drawing it")
         except Exception as exc:  # noqa: BLE001 - one undrawable figure must not lose the others
             notes.append(f"figure {number} could not be drawn: {type(exc).__name__}: {str(exc)[:200]}")
-    status = "ok" if error is None else ("memory" if error.kind == "memory" else "failed")
+    status: RunStatus = "ok" if error is None else ("memory" if error.kind == "memory" else "failed")
     run = ScriptRun(path=spec.script, status=status, seconds=round(seconds, 3),
                     working_dir="script" if Path(spec.cwd).resolve() != Path(spec.sandbox).resolve() else "root",
                     error=error, figures=tuple(figures), events=tuple(rec.events), isolation=isolation,

@@ -296,10 +296,10 @@ def _run_child(req: dict[str, Any], rcfile: str) -> None:
         os.dup2(src, dest)
         os.close(src)
     # the same text streams a PYTHONUNBUFFERED interpreter would have
-    sys.stdin = sys.__stdin__ = io.TextIOWrapper(io.FileIO(0, "r", closefd=False), encoding="utf-8")
-    sys.stdout = sys.__stdout__ = io.TextIOWrapper(io.FileIO(1, "w", closefd=False), encoding="utf-8",
+    sys.stdin = sys.__stdin__ = io.TextIOWrapper(io.FileIO(0, "r", closefd=False), encoding="utf-8")  # type: ignore[misc]  # the forked child replaces its streams
+    sys.stdout = sys.__stdout__ = io.TextIOWrapper(io.FileIO(1, "w", closefd=False), encoding="utf-8",  # type: ignore[misc]
                                                    errors="backslashreplace", write_through=True)
-    sys.stderr = sys.__stderr__ = io.TextIOWrapper(io.FileIO(2, "w", closefd=False), encoding="utf-8",
+    sys.stderr = sys.__stderr__ = io.TextIOWrapper(io.FileIO(2, "w", closefd=False), encoding="utf-8",  # type: ignore[misc]
                                                    errors="backslashreplace", write_through=True)
     os.environ.clear()
     os.environ.update(req["env"])

@@ -26,12 +26,18 @@ import re
 import warnings
 from collections.abc import Mapping
 from pathlib import Path
-from typing import Any
+from typing import Any, Literal, cast
 
 import numpy as np
 from PIL import Image, ImageDraw
 
-from figproof.model.comparison import RASTER_SUFFIXES, VECTOR_SUFFIXES, OutputComparison, kind_of
+from figproof.model.comparison import (
+    RASTER_SUFFIXES,
+    VECTOR_SUFFIXES,
+    ComparisonStatus,
+    OutputComparison,
+    kind_of,
+)
 
 MAX_PIXELS = 50_000_000
 MAX_VECTOR_BYTES = 256 * 1024 * 1024
@@ -133,7 +139,7 @@ def load_pixels(source: Path | io.BytesIO) -> np.ndarray:
             img.load()  # decode now: a truncated file fails here, not later
             if img.mode != "RGB":
                 img = img.convert("RGBA")
-                if img.getextrema()[3][0] == 255:
+                if img.getchannel("A").getextrema()[0] == 255:
                     img = img.convert("RGB")
             return np.asarray(img)
     except (OSError, ValueError, SyntaxError, EOFError, Image.DecompressionBombError) as exc:
@@ -361,6 +367,11 @@ def _first_difference(a: bytes, b: bytes) -> int:
     return n
 
 
+def _side(problem: Literal["missing", "unreadable"], label: str) -> ComparisonStatus:
+    """``missing-committed``, ``unreadable-regenerated``, ...: a problem of one side of the comparison."""
+    return cast(ComparisonStatus, f"{problem}-{label}")
+
+
 def _compare_vector(committed: Path, regenerated: Path) -> dict[str, Any]:
     suffix = committed.suffix.lower()
     raw: list[bytes] = []
@@ -430,7 +441,7 @@ def compare_output(
     base: dict[str, Any] = {"path": name, "kind": kind, "tolerance": float(tolerance)}
     for label, file in (("committed", committed), ("regenerated", regenerated)):
         if not file.is_file():
-            return OutputComparison(**base, status=f"missing-{label}", message=f"no {label} file")
+            return OutputComparison(**base, status=_side("missing", label), message=f"no {label} file")
     if kind == "vector":
         return OutputComparison(**base, **_compare_vector(committed, regenerated))
     if kind == "other":
@@ -439,7 +450,7 @@ def compare_output(
                                 message="bytes identical" if same else "bytes differ")
     for label, file in (("committed", committed), ("regenerated", regenerated)):
         if file.stat().st_size == 0:
-            return OutputComparison(**base, status=f"unreadable-{label}", message=f"the {label} file is empty")
+            return OutputComparison(**base, status=_side("unreadable", label), message=f"the {label} file is empty")
     fields = _compare_raster(committed, regenerated, tolerance=tolerance, max_pixels=max_pixels)
     fields["committed_version"] = recorded_version(committed)
     fields["regenerated_version"] = recorded_version(regenerated)
@@ -466,7 +477,7 @@ def compare_image_bytes(
                             "output": output}
     for label, data in (("committed", committed), ("regenerated", regenerated)):
         if not data:
-            return OutputComparison(**base, status=f"unreadable-{label}", message=f"the {label} image is empty")
+            return OutputComparison(**base, status=_side("unreadable", label), message=f"the {label} image is empty")
     fields = _compare_raster(io.BytesIO(committed), io.BytesIO(regenerated), tolerance=tolerance,
                              max_pixels=max_pixels)
     return OutputComparison(**base, **fields)

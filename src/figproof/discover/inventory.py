@@ -29,6 +29,7 @@ from pathlib import Path
 from figproof.config import Config
 from figproof.discover import gitrepo
 from figproof.model.context import Inventory
+from figproof.model.records import WorkingDir
 from figproof.notebook import MATPLOTLIB_MAGIC, Cell, NotebookError, code_cells, python_source
 
 SCRIPT_SUFFIXES = (".py", ".ipynb")
@@ -403,7 +404,7 @@ def _resolves(base: Path, literal: str, root: Path) -> bool:
         return False
 
 
-def choose_working_dir(root: Path, script: str, mode: str) -> str:
+def choose_working_dir(root: Path, script: str, mode: str) -> WorkingDir:
     """Pick the folder a script runs in: ``"root"`` (the repo root) or ``"script"`` (its own folder).
 
     Parameters
@@ -420,12 +421,13 @@ def choose_working_dir(root: Path, script: str, mode: str) -> str:
         notebook's kernel in the notebook's folder).  A ``.py`` file that does not
         parse runs from the root; its run reports the error.
     """
-    if mode in ("root", "script"):
-        return mode
+    forced: dict[str, WorkingDir] = {"root": "root", "script": "script"}
+    if mode in forced:
+        return forced[mode]
     if mode != "auto":
         raise ValueError(f"working-dir mode must be 'auto', 'root' or 'script', not {mode!r}")
     notebook = script.endswith(".ipynb")
-    tie = "script" if notebook else "root"
+    tie: WorkingDir = "script" if notebook else "root"
     path = root / script
     raw = _read(path)
     if raw is None:

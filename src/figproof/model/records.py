@@ -71,7 +71,7 @@ class ArrayStore:
         if self.folder is None:
             raise ValueError("this store has no folder")
         with open(self.folder / self.FILE, "wb") as fh:
-            np.savez(fh, **self.arrays)
+            np.savez(fh, **self.arrays)  # type: ignore[arg-type]  # numpy's stub types **kwds as allow_pickle
 
 
 def _encode(value: Any, store: ArrayStore) -> Any:
@@ -108,7 +108,7 @@ def _decode(tp: Any, value: Any, store: ArrayStore) -> Any:
     if origin in (typing.Union, types.UnionType):
         non_none = [a for a in args if a is not type(None)]
         return _decode(non_none[0], value, store) if len(non_none) == 1 else value
-    if dataclasses.is_dataclass(tp):
+    if isinstance(tp, type) and dataclasses.is_dataclass(tp):
         hints = _hints(tp)
         return tp(**{k: _decode(hints[k], v, store) for k, v in value.items() if k in hints})
     if origin is tuple:
@@ -145,7 +145,7 @@ Orientation = Literal["vertical", "horizontal"]  # vertical: bars and error bars
 ErrorBarOrigin = Literal["errorbar", "lines"]  # lines: seaborn draws its intervals as Line2D
 ColorMappedKind = Literal["image", "mesh", "scatter", "contour", "colorbar"]
 TextRole = Literal["title", "xlabel", "ylabel", "tick", "legend", "annotation", "text"]
-PatchKind = Literal["legend", "fill", "rectangle", "polygon", "other"]
+PatchKind = Literal["legend", "legend-entry", "fill", "rectangle", "polygon", "other"]
 Projection = Literal["rectilinear", "polar", "3d", "other"]
 ErrorKind = Literal["exception", "timeout", "memory", "signal", "exit", "needs-input", "no-report"]
 FileAction = Literal["read", "write", "save", "network", "missing", "blocked-write"]

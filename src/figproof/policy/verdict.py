@@ -10,7 +10,7 @@ from collections.abc import Sequence
 from figproof.model.findings import SEVERITIES, Finding, Summary
 from figproof.model.records import ScriptRun
 
-_RANK = {s: i for i, s in enumerate(SEVERITIES)}  # error 0, warning 1, note 2
+_RANK: dict[str, int] = {s: i for i, s in enumerate(SEVERITIES)}  # error 0, warning 1, note 2
 
 
 def crosses(severity: str, fail_on: str) -> bool:

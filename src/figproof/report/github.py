@@ -47,7 +47,7 @@ def _annotation(f: Finding) -> str:
     return command(COMMANDS.get(f.severity, "warning"), message, props)
 
 
-def annotations(result: CheckResult, *, cap_per_level: int = 50) -> list[str]:
+def annotation_lines(result: CheckResult, *, cap_per_level: int = 50) -> list[str]:
     """Workflow-command lines for the open (not accepted) findings of ``result``.
 
     Parameters
@@ -81,4 +81,4 @@ def annotations(result: CheckResult, *, cap_per_level: int = 50) -> list[str]:
     return lines
 
 
-__all__ = ["COMMANDS", "annotations", "command", "escape_data", "escape_property"]
+__all__ = ["COMMANDS", "annotation_lines", "command", "escape_data", "escape_property"]

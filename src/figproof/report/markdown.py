@@ -65,7 +65,7 @@ def _scripts_table(runs: tuple[ScriptRun, ...], timings: bool) -> list[str]:
     head = "| script | status | figures | ran from |" + (" seconds |" if timings else "")
     rows = [head, "|---|---|---|---|" + ("---|" if timings else "")]
     for r in runs:
-        status = r.status
+        status: str = r.status
         if r.error is not None and r.error.type:
             status += f": {r.error.type}"
         ran_from = "repo root" if r.working_dir == "root" else "its own folder"

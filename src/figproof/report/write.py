@@ -84,7 +84,7 @@ def write_reports(checked: Checked, args: argparse.Namespace, *, shown_root: str
     if getattr(args, "gitlab", None):
         _write(Path(args.gitlab), gitlab.render(result))
     if os.environ.get("GITHUB_ACTIONS") == "true" and not args.quiet:
-        for line in github.annotations(result):
+        for line in github.annotation_lines(result):
             print(line)
     summary = step_summary_path()
     if summary is not None:

@@ -8,9 +8,10 @@ from __future__ import annotations
 
 import hashlib
 from collections.abc import Iterable, Mapping
+from typing import Literal
 
 from figproof.model.context import RunContext
-from figproof.model.findings import Finding, Hit
+from figproof.model.findings import Finding, Hit, Severity
 from figproof.model.records import ScriptRun, Source
 from figproof.rules import axes, bars, colour, distribution, reproduce, run, visibility
 from figproof.rules.base import Rule
@@ -24,7 +25,7 @@ def by_id() -> dict[str, Rule]:
     return {r.id: r for r in RULES}
 
 
-def knob_value(settings: Mapping[str, tuple[str | None, Mapping[str, float]]], rule_id: str, name: str) -> float:
+def knob_value(settings: Mapping[str, tuple[object, Mapping[str, float]]], rule_id: str, name: str) -> float:
     """A rule's knob as configured, else the rule's own default (the one place a default is written).
 
     For the few knobs used outside their rule: the drift tolerance applied when images are compared,
@@ -41,7 +42,7 @@ def fingerprint(rule_id: str, path: str, figure: str | None, axes: int | None, k
     return hashlib.sha256(text.encode()).hexdigest()[:16]
 
 
-def _finding(r: Rule, hit: Hit, *, fallback: Source, figure: str | None, severity: str | None) -> Finding:
+def _finding(r: Rule, hit: Hit, *, fallback: Source, figure: str | None, severity: Severity | None) -> Finding:
     """``severity`` is the user's configured one: it wins over the hit's own, which wins over the default."""
     src = hit.source or fallback
     return Finding(
@@ -62,7 +63,7 @@ def _finding(r: Rule, hit: Hit, *, fallback: Source, figure: str | None, severit
 def apply(
     runs: Iterable[ScriptRun],
     context: RunContext,
-    settings: Mapping[str, tuple[str | None, Mapping[str, float]]] | None = None,
+    settings: Mapping[str, tuple[Severity | Literal["off"] | None, Mapping[str, float]]] | None = None,
 ) -> list[Finding]:
     """Run every enabled rule; ``settings`` maps rule id to (severity or "off", knob overrides)."""
     settings = settings or {}

@@ -12,6 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from figproof.model.findings import Severity
 from figproof.science import colour as cs
 
 
@@ -21,7 +22,7 @@ class MapProblem:
 
     kind: str  # reversal | centre-chroma | ends | cyclic-shape | steps
     shape: str  # sequential | diverging | cyclic
-    severity: str  # error | warning
+    severity: Severity  # error | warning
     value: float
     limit: float
     at: float = 0.0  # position in the map (0-1) where it happens

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from figproof.model.findings import Confidence, Hit, Severity
-from figproof.model.records import Axes, Axis, FigureModel, Line, PointSet, Source
+from figproof.model.records import Axes, Axis, Box, ErrorBars, FigureModel, Line, PointSet, Source, Violin
 from figproof.rules.base import Knob, Knobs, counted, rule
 
 # scales whose axes-fraction coordinate we can compute without extra parameters
@@ -375,7 +375,7 @@ def _value_axis(ax: Axes) -> str | None:
     y, unless y is categorical (a horizontal strip or dot plot), then x.  Both
     axes categorical: none.
     """
-    summaries = [*ax.boxes, *ax.violins]
+    summaries: list[Box | Violin] = [*ax.boxes, *ax.violins]
     if summaries:
         horizontal = sum(1 for m in summaries if m.orientation == "horizontal")
         return "x" if 2 * horizontal > len(summaries) else "y"
@@ -579,8 +579,9 @@ def axis_empty_span(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
         marks = _marks_in_gap(ax, which, axis, fmin, fmax)
         severity: Severity | None = "note" if marks else None
         gap_note = f"; {marks[0]} lies in the empty part" if marks else ""
-        source = next((m.source for m in (*ax.points, *ax.lines, *ax.boxes, *ax.violins, *ax.errorbars)
-                       if m.source is not None), None)
+        drawn: tuple[PointSet | Line | Box | Violin | ErrorBars, ...] = (
+            *ax.points, *ax.lines, *ax.boxes, *ax.violins, *ax.errorbars)
+        source = next((m.source for m in drawn if m.source is not None), None)
         yield Hit(message=(f"{100 * empty:.0f}% of the {which}-axis has no data{zero_note}: the values span "
                            f"{_fmt(dmin)} to {_fmt(dmax)} within limits {_fmt(lo)} to {_fmt(hi)}{gap_note}"),
                   source=source, axes=ax.index, severity=severity, confidence=confidence, key=f"{which}-axis")

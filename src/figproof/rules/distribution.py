@@ -395,6 +395,7 @@ def _small_n_hit(ax: Axes, kind: str, severity: Severity, items: list[tuple[_Sum
     first = items[0][0]
     if len(items) == 1:
         s, drawn, _ = items[0]
+        assert s.n is not None  # only groups of known size are judged
         message = (f"the {kind} at {where(s.vertical, s.position, ax)} summarises n = {s.n} values and draws "
                    f"{pct(drawn, s.n)} of them as points")
     else:

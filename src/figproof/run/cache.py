@@ -62,7 +62,7 @@ from collections.abc import Callable, Iterable, Mapping
 from dataclasses import replace
 from importlib import metadata
 from pathlib import Path, PurePosixPath
-from typing import Any
+from typing import Any, Literal
 
 from figproof import __version__
 from figproof.discover.imports import local_imports, search_folders
@@ -320,8 +320,8 @@ class CachingRunner:
             notes.append(f"result cache entry {_shown(entry, root)} was unreadable; ran the script and replaced it")
         # decided before the run, so an edit made while it runs cannot be stored against the old result
         # sys.path[0] is how figproof itself was started (its bin folder, or the cwd under -m), not the child's
-        folders = search_folders(root, task.script, task.working_dir, sys.path[1:])
-        imports = local_imports(root, task.script, folders)
+        search = search_folders(root, task.script, task.working_dir, sys.path[1:])
+        imports = local_imports(root, task.script, search)
         before = {p: self._hasher.sha256(root / p) for p in imports.files}
         run = self.inner().run(task, options)
         if script_sha is None or not cacheable(run):
@@ -353,7 +353,7 @@ class CachingRunner:
         return replace(run, notes=run.notes + notes) if notes else run
 
     @staticmethod
-    def _read_key(entry: Path) -> dict[str, Any] | bool | None:
+    def _read_key(entry: Path) -> dict[str, Any] | Literal[False] | None:
         """The entry's key; None when there is no entry, False when it is corrupt."""
         path = entry / KEY_FILE
         try:

@@ -46,7 +46,7 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Protocol
 
-from figproof.model.records import FileEvent, ScriptError, ScriptRun, load_run
+from figproof.model.records import ErrorKind, FileEvent, ScriptError, ScriptRun, WorkingDir, load_run
 from figproof.run.resources import EnvironmentProblem, describe_os_error, free_space, human_size, is_environment_error
 from figproof.run.sandbox import SandboxPool
 
@@ -70,7 +70,7 @@ class Task:
     """One script to run: repo-relative path and the working directory mode chosen for it."""
 
     script: str
-    working_dir: str = "root"  # root | script
+    working_dir: WorkingDir = "root"
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -353,7 +353,7 @@ def _lost_error(returncode: int | None, timed_out: bool, timeout: float, stderr:
         return ScriptError(kind="timeout", message=f"stopped after {timeout:g} s")
     if returncode is not None and returncode < 0:
         name = _SIGNAL_NAMES.get(-returncode, f"signal {-returncode}")
-        kind = "memory" if "MemoryError" in stderr else "signal"
+        kind: ErrorKind = "memory" if "MemoryError" in stderr else "signal"
         return ScriptError(kind=kind, type=name, message=f"killed by {name}")
     if "MemoryError" in stderr:
         return ScriptError(kind="memory", type="MemoryError", message="ran out of memory")
