@@ -142,13 +142,13 @@ def test_a_figure_saved_as_displayed_is_not_drawn_again_until_it_changes(tmp_pat
     fig.savefig(tmp_path / "a.png")
     fig.stale = False  # what the capture hook does after a savefig it can reuse
     calls = _counting(fig)
-    draw_for_extraction(fig, canvas, already_drawn=True, pixels=False)
+    draw_for_extraction(fig, canvas, already_drawn=True, renders=False)
     assert calls == []
     ax.set_title("later")  # an artist's change marks the figure stale (matplotlib's stale propagation)
     assert fig.stale
-    draw_for_extraction(fig, canvas, already_drawn=True, pixels=False)
+    draw_for_extraction(fig, canvas, already_drawn=True, renders=False)
     assert calls == [1]
-    draw_for_extraction(fig, canvas, already_drawn=False, pixels=True)
+    draw_for_extraction(fig, canvas, already_drawn=False, renders=True)
     assert calls == [1, 1]
 
 

@@ -22,6 +22,7 @@ from figproof import __version__
 if TYPE_CHECKING:
     from figproof.model.records import ScriptRun
     from figproof.pipeline import Checked
+    from figproof.report.write import ReportRequest
 
 
 class ExitCode(enum.IntEnum):
@@ -163,8 +164,8 @@ def cmd_rules(args: argparse.Namespace) -> int:
 
 def explain_text(rule_id: str) -> str:
     """The text ``figproof explain RULE`` prints."""
-    from figproof.rules import by_id
     from figproof.model.findings import renamed_note
+    from figproof.rules import by_id
     from figproof.rules.base import renamed_ids
 
     catalogue = by_id()
@@ -205,21 +206,33 @@ def _one_line_errors() -> tuple[type[Exception], ...]:
 def _progress(args: argparse.Namespace) -> Callable[[ScriptRun, int, int], None] | None:
     from figproof.report.write import progress_printer
 
-    return progress_printer(quiet=args.quiet, verbose=getattr(args, "verbose", False))
+    return progress_printer(quiet=getattr(args, "quiet", False), verbose=getattr(args, "verbose", False))
 
 
-def do_check(path: Path, args: argparse.Namespace, **option_overrides: object) -> Checked:
+def report_request(args: argparse.Namespace) -> ReportRequest:
+    """The reports the command line asks for."""
+    from figproof.report.write import ReportRequest
+
+    def path(name: str) -> Path | None:
+        value = getattr(args, name, None)
+        return Path(value) if value else None
+
+    return ReportRequest(markdown=path("markdown"), json=path("json"), sarif=path("sarif"), gitlab=path("gitlab"),
+                         provenance=path("provenance"), images=path("images"),
+                         timings=getattr(args, "timings", False), annotations=not getattr(args, "quiet", False))
+
+
+def do_check(path: Path, args: argparse.Namespace, request: ReportRequest, **option_overrides: object) -> Checked:
     """Run the pipeline for ``path`` with the command line's options; returns a Checked."""
     from figproof.pipeline import CheckOptions, check
 
     if not path.exists():
         raise UsageError(f"{path}: no such file or folder")
-    skip = tuple(_inside(path, Path(p)) for p in (getattr(args, "images", None), getattr(args, "json", None),
-                                                   getattr(args, "markdown", None)) if p)
+    skip = tuple(_inside(path, p) for p in (request.images, request.json, request.markdown) if p is not None)
     options = CheckOptions(jobs=getattr(args, "jobs", None), skip_copy=tuple(s for s in skip if s),
                            shard=getattr(args, "shard", None), changed_since=getattr(args, "changed_since", None),
                            twice=getattr(args, "twice", False), cache=not getattr(args, "no_cache", False),
-                           renders=bool(getattr(args, "images", None)) or getattr(args, "twice", False),
+                           renders=request.images is not None or getattr(args, "twice", False),
                            **option_overrides)  # type: ignore[arg-type]
     try:
         return check(path, options, progress=_progress(args))
@@ -227,17 +240,17 @@ def do_check(path: Path, args: argparse.Namespace, **option_overrides: object) -
         raise UsageError(str(exc)) from None
 
 
-def run_check(path: Path, args: argparse.Namespace, *, shown_root: str | None = None,
+def run_check(path: Path, args: argparse.Namespace, request: ReportRequest, *, shown_root: str | None = None,
               changed: tuple[str, ...] | None = None) -> int:
-    """Check ``path`` and write the reports asked for in ``args``."""
+    """Check ``path`` and write the reports of ``request``."""
     from figproof.report.write import final_line, write_reports
 
-    checked = do_check(path, args, changed=changed)
+    checked = do_check(path, args, request, changed=changed)
     try:
-        text = write_reports(checked, args, shown_root=shown_root)
+        text = write_reports(checked, request, shown_root=shown_root)
     finally:
         shutil.rmtree(checked.artifacts, ignore_errors=True)
-    if not args.quiet:
+    if not getattr(args, "quiet", False):
         print(text)
         print(final_line(checked.result, checked.cached), file=sys.stderr)
     return ExitCode.PASSED if checked.result.summary.passed else ExitCode.FAILED
@@ -260,10 +273,10 @@ def cmd_check(args: argparse.Namespace) -> int:
         except ConfigError as exc:
             raise UsageError(str(exc)) from None
         changed = tuple(_repo_relative(root, Path(p)) for p in args.paths)
-        return run_check(Path("."), args, changed=tuple(c for c in changed if c))
+        return run_check(Path("."), args, report_request(args), changed=tuple(c for c in changed if c))
     if len(args.paths) > 1:
         raise UsageError("check takes one repo folder (use --changed-files to pass changed files)")
-    return run_check(Path(args.paths[0] if args.paths else "."), args)
+    return run_check(Path(args.paths[0] if args.paths else "."), args, report_request(args))
 
 
 def _repo_relative(root: Path, p: Path) -> str | None:
@@ -275,20 +288,15 @@ def _repo_relative(root: Path, p: Path) -> str | None:
 
 def cmd_demo(args: argparse.Namespace) -> int:
     from figproof.demo import copy_demo
+    from figproof.report.write import ReportRequest
 
     base = Path(args.keep) if args.keep else Path(tempfile.mkdtemp(prefix="figproof-demo-"))
     repo = copy_demo(base)
     reports = base / "figproof-report"
-    args.json = str(reports / "figproof.json")
-    args.markdown = str(reports / "summary.md")
-    args.images = str(reports / "images")
-    args.sarif = str(reports / "figproof.sarif")
-    args.gitlab = None
-    args.provenance = str(reports / "provenance.json")
-    args.quiet = False
-    args.verbose = False
-    args.timings = False
-    code = run_check(repo, args, shown_root="demo-lab")
+    request = ReportRequest(json=reports / "figproof.json", markdown=reports / "summary.md",
+                            images=reports / "images", sarif=reports / "figproof.sarif",
+                            provenance=reports / "provenance.json")
+    code = run_check(repo, args, request, shown_root="demo-lab")
     print(f"The demo lab repo is in {repo}; it is meant to fail (exit code {int(code)}).")
     print(f"Reports: {reports}/summary.md, {reports}/figproof.json, {reports}/figproof.sarif, "
           f"images in {reports}/images")
@@ -297,11 +305,11 @@ def cmd_demo(args: argparse.Namespace) -> int:
 
 def cmd_accept(args: argparse.Namespace) -> int:
     from figproof.policy.accept import write_accepted
+    from figproof.report.write import ReportRequest
     from figproof.rules import by_id
     from figproof.rules.base import renamed_ids
 
-    args.quiet, args.verbose = False, False
-    checked = do_check(Path(args.path), args)
+    checked = do_check(Path(args.path), args, ReportRequest())
     shutil.rmtree(checked.artifacts, ignore_errors=True)
     target = checked.config.accepted_path()
     entries = write_accepted(checked.result.findings, target, renamed=renamed_ids(by_id()))
@@ -321,7 +329,7 @@ def cmd_merge(args: argparse.Namespace) -> int:
         except OSError as exc:
             raise UsageError(f"{name}: cannot read the report ({exc.strerror})") from None
     try:
-        text, passed = write_merged(texts, args, list(args.reports))
+        text, passed = write_merged(texts, report_request(args), list(args.reports))
     except ShardError as exc:
         raise UsageError(str(exc)) from None
     if not args.quiet:

@@ -556,17 +556,17 @@ def _match_sample(samples: list[Sample], median: float, origin: str, used: set[i
 
 
 def extract_figure(fig: Figure, number: int, rec: Recorder, folder: Path | None, *,
-                   render: bool = True) -> FigureModel:
+                   renders: bool = True) -> FigureModel:
     """Return the model of ``fig`` (drawn as needed; see :func:`draw_for_extraction`).
 
-    With a ``folder``, ``render`` writes the figure's pixels there as ``figure-N.png``, and a notebook's
+    With a ``folder``, ``renders`` writes the figure's pixels there as ``figure-N.png``, and a notebook's
     figure is also saved as its inline display would save it (``figure-N-inline.png``).
     """
     from matplotlib.backends.backend_agg import FigureCanvasAgg
 
     canvas = fig.canvas if isinstance(fig.canvas, FigureCanvasAgg) else FigureCanvasAgg(fig)
-    render_path = folder / f"figure-{number}.png" if folder is not None and render else None
-    renderer = draw_for_extraction(fig, canvas, already_drawn=id(fig) in rec.drawn, pixels=render_path is not None)
+    render_path = folder / f"figure-{number}.png" if folder is not None and renders else None
+    renderer = draw_for_extraction(fig, canvas, already_drawn=id(fig) in rec.drawn, renders=render_path is not None)
     render_name = None
     if render_path is not None:
         from PIL import Image
@@ -606,19 +606,19 @@ def extract_figure(fig: Figure, number: int, rec: Recorder, folder: Path | None,
                        texts=tuple(fig_texts), inline_render=inline)
 
 
-def draw_for_extraction(fig: Figure, canvas: Any, *, already_drawn: bool, pixels: bool) -> Any:
+def draw_for_extraction(fig: Figure, canvas: Any, *, already_drawn: bool, renders: bool) -> Any:
     """Bring ``fig`` to its drawn state and return an Agg renderer at the figure's dpi for measuring text.
 
     Extraction needs what only a draw settles (tick labels, layout-engine positions, artists that plotting
     libraries add or remove while drawing) and a renderer to measure text; the pixels are needed only for
-    a rendering.  So: with ``pixels``, a full Agg draw; else, when the script's own savefig drew the figure,
+    a rendering.  So: with ``renders``, a full Agg draw; else, when the script's own savefig drew the figure,
     nothing changed it since (``already_drawn`` and the figure is not stale) and no layout engine moves its
     axes with the dpi, no draw at all; else a draw that lays everything out but paints nothing
     (matplotlib's ``draw_without_rendering``).  All three give the same model.
     """
     # a layout engine places the axes for the dpi it ran at: the script's savefig may have used another
     reuse = already_drawn and not fig.stale and fig.get_layout_engine() is None
-    if pixels:
+    if renders:
         canvas.draw()
     elif not reuse:
         fig.draw_without_rendering()

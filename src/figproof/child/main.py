@@ -260,11 +260,11 @@ def _finish(spec: Spec, rec: Any, error: Any, seconds: float, isolation: tuple[s
     out = Path(spec.out)
     figures = []
     notes = list(dict.fromkeys(n for n in rec.notes if n != "needs-input"))
-    renders = out / "renders"
-    renders.mkdir(exist_ok=True)
+    render_folder = out / "renders"
+    render_folder.mkdir(exist_ok=True)
     for number, fig in enumerate(rec.figures, start=1):
         try:
-            figures.append(extract_figure(fig, number, rec, renders, render=spec.renders))
+            figures.append(extract_figure(fig, number, rec, render_folder, renders=spec.renders))
         except MemoryError:
             notes.append(f"figure {number}: ran out of memory while drawing it")
         except Exception as exc:  # noqa: BLE001 - one undrawable figure must not lose the others

@@ -9,13 +9,13 @@ GITHUB_STEP_SUMMARY, NO_COLOR and SOURCE_DATE_EPOCH.
 
 from __future__ import annotations
 
-import argparse
 import json
 import os
 import shutil
 import sys
 import time
 from collections.abc import Callable
+from dataclasses import dataclass
 from datetime import UTC
 from pathlib import Path
 from typing import Any, TextIO
@@ -59,7 +59,21 @@ def step_summary_path() -> Path | None:
     return Path(value) if value else None
 
 
-def write_reports(checked: Checked, args: argparse.Namespace, *, shown_root: str | None = None) -> str:
+@dataclass(frozen=True, slots=True, kw_only=True)
+class ReportRequest:
+    """Which reports to write and where (None: not written); built by the command line."""
+
+    markdown: Path | None = None
+    json: Path | None = None
+    sarif: Path | None = None
+    gitlab: Path | None = None
+    provenance: Path | None = None
+    images: Path | None = None  # folder for figure images; asking for it makes the children keep renders
+    timings: bool = False  # run times in the reports (they then vary from run to run)
+    annotations: bool = True  # GitHub workflow annotations on stdout, when running in GitHub Actions
+
+
+def write_reports(checked: Checked, request: ReportRequest, *, shown_root: str | None = None) -> str:
     """Write every requested report; return the markdown summary for stdout."""
     from dataclasses import replace
 
@@ -67,23 +81,23 @@ def write_reports(checked: Checked, args: argparse.Namespace, *, shown_root: str
 
     result = checked.result if shown_root is None else replace(checked.result, root=shown_root)
     images: dict[str, str] = {}
-    if args.images:
-        images = write_images(checked, Path(args.images), Path(args.markdown).parent if args.markdown else None)
+    if request.images is not None:
+        images = write_images(checked, request.images, request.markdown.parent if request.markdown else None)
     summaries = {rid: r.summary for rid, r in by_id().items()}
     manifest = provenance_manifest(checked)
-    text = markdown.render(result, images=images, timings=args.timings, rule_summaries=summaries,
+    text = markdown.render(result, images=images, timings=request.timings, rule_summaries=summaries,
                            provenance=manifest)
-    if getattr(args, "provenance", None):
-        _write(Path(args.provenance), json.dumps(manifest, sort_keys=True, allow_nan=False, indent=2) + "\n")
-    if args.markdown:
-        _write(Path(args.markdown), text)
-    if args.json:
-        _write(Path(args.json), json_report.render(result, timings=args.timings))
-    if getattr(args, "sarif", None):
-        _write(Path(args.sarif), sarif.render(result, tuple(by_id().values())))
-    if getattr(args, "gitlab", None):
-        _write(Path(args.gitlab), gitlab.render(result))
-    if os.environ.get("GITHUB_ACTIONS") == "true" and not args.quiet:
+    if request.provenance is not None:
+        _write(request.provenance, json.dumps(manifest, sort_keys=True, allow_nan=False, indent=2) + "\n")
+    if request.markdown is not None:
+        _write(request.markdown, text)
+    if request.json is not None:
+        _write(request.json, json_report.render(result, timings=request.timings))
+    if request.sarif is not None:
+        _write(request.sarif, sarif.render(result, tuple(by_id().values())))
+    if request.gitlab is not None:
+        _write(request.gitlab, gitlab.render(result))
+    if os.environ.get("GITHUB_ACTIONS") == "true" and request.annotations:
         for line in github.annotation_lines(result):
             print(line)
     summary = step_summary_path()
@@ -197,7 +211,7 @@ def progress_printer(*, quiet: bool, verbose: bool,
     return report
 
 
-def write_merged(texts: list[str], args: argparse.Namespace, names: list[str] | None = None) -> tuple[str, bool]:
+def write_merged(texts: list[str], request: ReportRequest, names: list[str] | None = None) -> tuple[str, bool]:
     """Merge shard reports and write the requested outputs; return the markdown and the verdict."""
     from figproof.discover.shard import merge_reports
     from figproof.rules import by_id
@@ -206,14 +220,14 @@ def write_merged(texts: list[str], args: argparse.Namespace, names: list[str] | 
     result = result_from_json(merged)
     text = markdown.render(result, rule_summaries={rid: r.summary for rid, r in by_id().items()})
     text += f"\nMerged from {len(texts)} reports; per-script details are in the shards' JSON reports.\n"
-    if args.json:
-        _write(Path(args.json), json.dumps(merged, sort_keys=True, allow_nan=False, indent=2) + "\n")
-    if args.markdown:
-        _write(Path(args.markdown), text)
-    if args.sarif:
-        _write(Path(args.sarif), sarif.render(result, tuple(by_id().values())))
-    if args.gitlab:
-        _write(Path(args.gitlab), gitlab.render(result))
+    if request.json is not None:
+        _write(request.json, json.dumps(merged, sort_keys=True, allow_nan=False, indent=2) + "\n")
+    if request.markdown is not None:
+        _write(request.markdown, text)
+    if request.sarif is not None:
+        _write(request.sarif, sarif.render(result, tuple(by_id().values())))
+    if request.gitlab is not None:
+        _write(request.gitlab, gitlab.render(result))
     return text, result.summary.passed
 
 
