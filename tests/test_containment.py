@@ -24,7 +24,7 @@ from figproof.run.pool import WarmPool
 pytestmark = pytest.mark.skipif(not Path("/proc/self/stat").exists(),
                                 reason="process checks read /proc (Linux); the hostile scripts use POSIX calls")
 
-TIMEOUT = 3.0
+TIMEOUT = 10.0  # long enough for a fresh interpreter to import matplotlib on a busy 2-core machine
 MEMORY_MIB = 600  # numpy + pandas + matplotlib take about 200 MiB of address space after import
 OUTSIDE = Path.home() / f".figproof-hostile-{uuid.uuid4().hex}.txt"
 
