@@ -35,6 +35,16 @@ def figure_png_name(figure_id: str) -> str:
     return f"{script.replace('/', '__')}__figure-{number}.png"
 
 
+def _request(images: Path, markdown: Path, report: Path) -> object:
+    """What to write, in the form this figproof's ``write_reports`` takes."""
+    try:
+        from figproof.report.write import ReportRequest
+    except ImportError:  # before the report request: the command line's namespace
+        return argparse.Namespace(images=str(images), markdown=str(markdown), json=str(report), timings=False,
+                                  sarif=None, gitlab=None, provenance=None, quiet=True)
+    return ReportRequest(images=images, markdown=markdown, json=report, annotations=False)
+
+
 def render_member(work: Path, out: Path) -> dict:
     """Check one work copy; write its reports and figure PNGs under ``out``; returns the JSON report."""
     from figproof.pipeline import CheckOptions, check
@@ -49,10 +59,8 @@ def render_member(work: Path, out: Path) -> dict:
     artifacts = Path(tempfile.mkdtemp(prefix="figproof-realworld-"))
     try:
         checked = check(work, CheckOptions(jobs=1, cache=False, renders=True, artifacts=artifacts))
-        args = argparse.Namespace(images=str(folder / "images"), markdown=str(out / f"{name}.md"),
-                                  json=str(out / f"{name}.json"), timings=False, sarif=None, gitlab=None,
-                                  provenance=None, quiet=True)
-        write_reports(checked, args, shown_root=name)
+        write_reports(checked, _request(folder / "images", out / f"{name}.md", out / f"{name}.json"),
+                      shown_root=name)
         for run in checked.result.runs:
             for fig in run.figures:
                 if fig.render is None:
