@@ -202,9 +202,9 @@ HEADER = ["member", "scripts", "figures", "findings", "per fig", "clean w/ f.", 
 
 def table(rows: list[list[str]]) -> str:
     widths = [max(len(r[i]) for r in [HEADER, *rows]) for i in range(len(HEADER))]
-    lines = [" | ".join(c.ljust(w) for c, w in zip(HEADER, widths)),
+    lines = [" | ".join(c.ljust(w) for c, w in zip(HEADER, widths, strict=True)),
              "-|-".join("-" * w for w in widths)]
-    lines += [" | ".join(c.ljust(w) for c, w in zip(r, widths)) for r in rows]
+    lines += [" | ".join(c.ljust(w) for c, w in zip(r, widths, strict=True)) for r in rows]
     return "\n".join(lines)
 
 
