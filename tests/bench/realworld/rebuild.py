@@ -51,7 +51,7 @@ def _git(git_dir: Path, *args: str, stdout: int | None = subprocess.PIPE) -> byt
 def mirror_git_dir(mirrors: Path, repo: str) -> Path:
     """The git directory of the mirror of ``owner/name`` under ``mirrors``."""
     base = mirrors / repo.replace("/", "+")
-    for candidate in (base / "repo", base / ".git", base):
+    for candidate in (base / "repo", base / "repo" / ".git", base / ".git", base):
         if (candidate / "HEAD").is_file() and (candidate / "objects").is_dir():
             return candidate
     raise SystemExit(f"{base}: no git mirror of {repo} here (bring it with the search tool's fetch, "

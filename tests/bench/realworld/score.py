@@ -28,6 +28,7 @@ HERE = Path(__file__).resolve().parent
 LABELS = HERE / "labels.toml"
 VERDICTS = ("wanted", "repeat", "false-alarm")
 # rules about running the scripts rather than about a drawn figure
+RENAMED = {"errorbars-sem": "errorbars-ambiguous"}  # old rule ids, as older reports name them
 MECHANICAL = ("script-fails", "input-missing", "input-outside-repo", "figure-orphan")
 
 
@@ -138,7 +139,8 @@ def read_run(folder: Path) -> dict[str, dict]:
 
 
 def findings_of(member: str, report: dict) -> list[Finding]:
-    return [Finding(member=member, script=f["path"], figure=figure_number(f.get("figure")), rule=f["rule"],
+    return [Finding(member=member, script=f["path"], figure=figure_number(f.get("figure")),
+                    rule=RENAMED.get(f["rule"], f["rule"]),
                     axes=f.get("axes"), message=f.get("message", ""), line=f.get("line"))
             for f in report["findings"] if f.get("accepted") is None]
 
@@ -249,10 +251,16 @@ def main(argv: list[str] | None = None) -> int:
               f"finding, 'prec. fig' leaves out {', '.join(MECHANICAL)}\n")
         totals.append((folder, total))
         if args.unjudged:
-            print("### unjudged findings")
+            print("### unjudged findings (one line per member, script, figure, rule and axes)")
+            seen: dict[tuple[str, str, int, str, int | None], int] = defaultdict(int)
+            first: dict[tuple[str, str, int, str, int | None], Finding] = {}
             for f in findings:
                 if f.verdict is None:
-                    print(toml_stub(f))
+                    key = (f.member, f.script, f.figure, f.rule, f.axes)
+                    seen[key] += 1
+                    first.setdefault(key, f)
+            for key, f in first.items():
+                print(toml_stub(f) + (f" ({seen[key]} findings)" if seen[key] > 1 else ""))
             print()
         if args.false_alarms:
             print("### false alarms")
