@@ -17,6 +17,7 @@ compared side by side. The measures (see README.md here for the labelling conven
 from __future__ import annotations
 
 import argparse
+import fnmatch
 import json
 import sys
 import tomllib
@@ -79,11 +80,22 @@ def figure_number(figure_id: str | None) -> int:
     return int(figure_id.rpartition("#")[2])
 
 
-def load_labels(path: Path = LABELS) -> dict[tuple[str, str, int], dict]:
-    """Figure labels keyed by (member, script, figure number); figure 0 holds script-level labels."""
+Labels = dict[tuple[str, str, int], dict]
+
+
+def load_labels(path: Path = LABELS) -> Labels:
+    """Figure labels keyed by (member, script, figure number); figure 0 holds script-level labels.
+
+    ``[[run]]`` entries (findings about files rather than scripts, such as committed figures no script
+    writes) are kept under the key (member, "", -1) as a list in ``"run"``.
+    """
     with open(path, "rb") as fh:
         data = tomllib.load(fh)
-    labels: dict[tuple[str, str, int], dict] = {}
+    labels: Labels = {}
+    for entry in data.get("run", []):
+        if entry.get("verdict") not in VERDICTS:
+            raise SystemExit(f"{path}: run label {entry}: verdict must be one of {VERDICTS}")
+        labels.setdefault((entry["member"], "", -1), {"run": []})["run"].append(entry)
     for entry in data.get("figure", []):
         key = (entry["member"], entry["script"], int(entry.get("figure", 0)))
         if key in labels:
@@ -104,12 +116,16 @@ def _matches(item: dict, f: Finding) -> bool:
     return not about or about.lower() in f.message.lower()
 
 
-def judge(findings: list[Finding], labels: dict[tuple[str, str, int], dict]) -> None:
+def judge(findings: list[Finding], labels: Labels) -> None:
     """Give each finding its verdict (in place), in report order."""
     used: dict[int, int] = defaultdict(int)  # id(label item) -> findings it has judged
     for f in findings:
         label = labels.get((f.member, f.script, f.figure))
         if label is None:
+            for entry in labels.get((f.member, "", -1), {}).get("run", []):
+                if entry["rule"] == f.rule and fnmatch.fnmatch(f.script, entry["path"]):
+                    f.verdict, f.source = entry["verdict"], "judged"
+                    break
             continue
         for item in label.get("judged", []):
             if _matches(item, f):
@@ -145,7 +161,7 @@ def findings_of(member: str, report: dict) -> list[Finding]:
             for f in report["findings"] if f.get("accepted") is None]
 
 
-def score_member(member: str, report: dict, labels: dict[tuple[str, str, int], dict],
+def score_member(member: str, report: dict, labels: Labels,
                  missed: list[str]) -> tuple[Tally, list[Finding]]:
     t = Tally()
     findings = findings_of(member, report)
@@ -164,7 +180,7 @@ def score_member(member: str, report: dict, labels: dict[tuple[str, str, int], d
                 t.verdicts_figure_rules[f.verdict] += 1
     for s in report["scripts"]:
         drawn = [figure_number(fig["id"]) for fig in s.get("figures", [])]
-        mine = {k[2]: v for k, v in labels.items() if k[0] == member and k[1] == s["path"]}
+        mine = {k[2]: v for k, v in labels.items() if k[0] == member and k[1] == s["path"] and k[2] >= 0}
         t.labelled_figures += sum(1 for n in drawn if n in mine)
         clean = bool(mine) and all(n in mine for n in drawn) and all(
             v.get("clean") and not v.get("problems") for v in mine.values())
@@ -172,7 +188,7 @@ def score_member(member: str, report: dict, labels: dict[tuple[str, str, int], d
             t.clean_scripts += 1
             t.clean_with_findings += bool(by_script.get(s["path"]))
     for (m, script, number), label in sorted(labels.items()):
-        if m != member:
+        if m != member or number < 0:
             continue
         for item in label.get("problems", []):
             t.problems += 1
@@ -210,7 +226,7 @@ def table(rows: list[list[str]]) -> str:
     return "\n".join(lines)
 
 
-def score_run(folder: Path, labels: dict[tuple[str, str, int], dict]) -> tuple[dict[str, Tally], Tally,
+def score_run(folder: Path, labels: Labels) -> tuple[dict[str, Tally], Tally,
                                                                                 list[Finding], list[str]]:
     per: dict[str, Tally] = {}
     total = Tally()
