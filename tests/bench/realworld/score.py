@@ -44,6 +44,9 @@ class Finding:
     line: int | None
     verdict: str | None = None
     source: str = ""  # judged | problem | clean | ""
+    # every (script, figure, axes) the finding stands for: its instances (schema 2 reports group the
+    # occurrences of one cause into one finding), or the finding itself
+    places: tuple[tuple[str, int, int | None], ...] = ()
 
     def describe(self) -> str:
         where = f"figure {self.figure}" if self.figure else "script"
@@ -154,11 +157,32 @@ def read_run(folder: Path) -> dict[str, dict]:
     return reports
 
 
+def _places(f: dict) -> tuple[tuple[str, int, int | None], ...]:
+    own = (f["path"], figure_number(f.get("figure")), f.get("axes"))
+    more = [(i.get("path", f["path"]), figure_number(i.get("figure", f.get("figure"))), i.get("axes"))
+            for i in f.get("instances", [])]
+    return tuple(dict.fromkeys([own, *more]))
+
+
 def findings_of(member: str, report: dict) -> list[Finding]:
     return [Finding(member=member, script=f["path"], figure=figure_number(f.get("figure")),
                     rule=RENAMED.get(f["rule"], f["rule"]),
-                    axes=f.get("axes"), message=f.get("message", ""), line=f.get("line"))
+                    axes=f.get("axes"), message=f.get("message", ""), line=f.get("line"), places=_places(f))
             for f in report["findings"] if f.get("accepted") is None]
+
+
+def _found(item: dict, script: str, number: int, findings: list[Finding]) -> bool:
+    """Whether some finding (or one of its instances) is the labelled problem ``item``."""
+    for f in findings:
+        if f.rule != item["rule"]:
+            continue
+        about = item.get("about")
+        if about and about.lower() not in f.message.lower():
+            continue
+        for p_script, p_figure, p_axes in f.places:
+            if p_script == script and p_figure == number and ("axes" not in item or item["axes"] == p_axes):
+                return True
+    return False
 
 
 def score_member(member: str, report: dict, labels: Labels,
@@ -192,8 +216,7 @@ def score_member(member: str, report: dict, labels: Labels,
             continue
         for item in label.get("problems", []):
             t.problems += 1
-            probe = [f for f in by_script.get(script, []) if f.figure == number and _matches(item, f)]
-            if probe:
+            if _found(item, script, number, findings):
                 t.found += 1
             else:
                 missed.append(f"{member} {script} figure {number} [{item['rule']}] {item.get('reason', '')}")
