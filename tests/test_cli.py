@@ -82,7 +82,7 @@ def test_failing_check_writes_reports_and_exits_1(tmp_path, capsys) -> None:
     code = main(["check", str(repo), "--json", str(out / "r.json"), "--markdown", str(out / "r.md")])
     assert code == ExitCode.FAILED
     data = json.loads((out / "r.json").read_text())
-    assert data["schema"] == 1 and data["tool"]["name"] == "figproof"
+    assert data["schema"] == 2 and data["tool"]["name"] == "figproof"
     assert data["summary"]["passed"] is False and data["summary"]["errors"] == 2
     assert {s["path"]: s["status"] for s in data["scripts"]} == {
         "healthy.py": "ok", "raises.py": "failed", "syntax_error.py": "failed"}

@@ -197,12 +197,18 @@ def test_tab_red_against_tab_green_fails_deutan() -> None:
     assert hits[0].source == src(11) and hits[0].axes == 0
 
 
-def test_pure_red_green_keeps_only_lightness_for_deutan() -> None:
-    # common practice: red/green fails for deutan readers; pure #ff0000/#00ff00 keep a lightness difference
-    # (ΔE' about 25) but lose their hue difference, which the a'b' check catches
-    hits = run(colour.colours_confusable_cvd, lines_figure("#ff0000", "#00ff00"))
+def test_pure_red_green_keep_enough_lightness_for_deutan() -> None:
+    # pure #ff0000/#00ff00 lose their hue difference for deutan readers (Machado 2009 via colorspacious) but
+    # keep a lightness difference J' of about 25, which tells them apart: no warning
+    assert run(colour.colours_confusable_cvd, lines_figure("#ff0000", "#00ff00")) == []
+
+
+def test_red_green_with_little_lightness_left_warns_for_deutan() -> None:
+    # #cc0000/#00aa00 lose their hue difference under simulated deutan vision (Machado 2009 via colorspacious)
+    # and keep only J' about 11 of lightness difference (below 15, common practice): a warning
+    hits = run(colour.colours_confusable_cvd, lines_figure("#cc0000", "#00aa00"))
     assert [h.severity for h in hits] == ["warning"]
-    assert "deutan" in hits[0].message and "hue" in hits[0].message
+    assert "deutan" in hits[0].message and "hue difference is lost" in hits[0].message
 
 
 @pytest.mark.parametrize(("a", "b"), [("#00ffff", "#ff00ff"), ("#00ff00", "#ff00ff")])
@@ -221,7 +227,7 @@ def test_green_blue_collapses_for_tritan(a: str, b: str) -> None:
 
 def test_normal_vision_near_duplicates_are_errors() -> None:
     hits = run(colour.colours_confusable_cvd, lines_figure("#1f77b4", "#2077b8"))
-    assert len(hits) == 1 and "normal vision" in hits[0].message
+    assert len(hits) == 1 and "normal colour vision" in hits[0].message
 
 
 def test_cvd_severity_knob() -> None:

@@ -1,4 +1,4 @@
-"""Shard selection and merging of JSON reports (schema 1, as in DESIGN.md)."""
+"""Shard selection and merging of JSON reports (schema 2: DESIGN.md's schema 1 plus each finding's instances)."""
 
 from __future__ import annotations
 
@@ -55,7 +55,7 @@ def test_adding_scripts_moves_no_existing_script() -> None:
 
 def _report(scripts: list[str], findings: list[dict], passed: bool, **extra: object) -> str:
     data = {
-        "schema": 1, "tool": {"name": "figproof", "version": "0.1.0"}, "root": ".",
+        "schema": 2, "tool": {"name": "figproof", "version": "0.1.0"}, "root": ".",
         "scripts": [{"path": p, "status": "ok", "seconds": 1.0, "inputs": [],
                      "figures": [{"id": f"{p}#1", "outputs": [], "axes": 1}]} for p in scripts],
         "findings": findings,
@@ -84,7 +84,7 @@ def test_merge_recomputes_summary_and_verdict() -> None:
     assert merged["summary"] == {"scripts": 3, "figures": 3, "errors": 1, "warnings": 1, "notes": 1,
                                  "accepted": 1, "passed": False}
     assert merged["notes"] == ["cache reused for a.py", "m.py slow"]
-    assert merged["tool"] == {"name": "figproof", "version": "0.1.0"} and merged["schema"] == 1
+    assert merged["tool"] == {"name": "figproof", "version": "0.1.0"} and merged["schema"] == 2
     assert merge_reports([_report(["a.py"], [], True), _report(["b.py"], [], True)])["summary"]["passed"] is True
 
 
@@ -100,15 +100,15 @@ def test_merge_of_one_report_keeps_its_content() -> None:
     ([], "nothing to merge"),
     (["{"], "report 1: not valid JSON"),
     (["[]"], "report 1: expected a figproof JSON report"),
-    ([_report(["a.py"], [], True), json.dumps({**json.loads(_report(["b.py"], [], True)), "schema": 2})],
-     "report 2: report schema 2, this figproof merges schema 1"),
+    ([_report(["a.py"], [], True), json.dumps({**json.loads(_report(["b.py"], [], True)), "schema": 1})],
+     "report 2: report schema 1, this figproof merges schema 2"),
     ([_report(["a.py"], [], True), _report(["a.py"], [], True)], "script 'a.py' is also in report 1"),
     ([_report(["a.py"], [], True),
       json.dumps({**json.loads(_report(["b.py"], [], True)), "tool": {"name": "figproof", "version": "0.2.0"}})],
      "report 2: 'tool'"),
     ([_report(["a.py"], [], True, fail_on="error"), _report(["b.py"], [], True, fail_on="warning")],
      "report 2: 'fail_on'"),
-    ([json.dumps({"schema": 1, "scripts": [], "findings": [], "summary": {}})], "'summary.passed'"),
+    ([json.dumps({"schema": 2, "scripts": [], "findings": [], "summary": {}})], "'summary.passed'"),
 ])
 def test_merge_rejects_mismatched_or_broken_reports(texts: list[str], expected: str) -> None:
     with pytest.raises(ShardError) as info:

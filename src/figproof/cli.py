@@ -79,7 +79,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def _report_flags(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--json", metavar="FILE", help="write the JSON report (schema 1)")
+    p.add_argument("--json", metavar="FILE", help="write the JSON report (schema 2)")
     p.add_argument("--markdown", metavar="FILE", help="write the markdown summary")
     p.add_argument("--sarif", metavar="FILE", help="write a SARIF 2.1.0 log (for code-scanning dashboards)")
     p.add_argument("--gitlab", metavar="FILE", help="write a GitLab code-quality report")

@@ -15,7 +15,7 @@ from typing import Any
 
 from figproof.model.findings import SEVERITIES
 
-REPORT_SCHEMA = 1
+REPORT_SCHEMA = 2
 _SPEC = re.compile(r"^\s*(\d+)\s*/\s*(\d+)\s*$")
 _COUNT_KEYS = {"error": "errors", "warning": "warnings", "note": "notes"}
 
@@ -101,7 +101,7 @@ def _figures(scripts: list[Any], reports: list[dict[str, Any]]) -> int:
 
 
 def merge_reports(json_texts: Sequence[str], names: Sequence[str] | None = None) -> dict[str, Any]:
-    """Combine JSON reports (schema 1) of the shards of one check into one report with one verdict.
+    """Combine JSON reports (schema 2) of the shards of one check into one report with one verdict.
 
     Scripts and findings are concatenated (findings re-sorted by path, line, rule); summary counts
     are recomputed from them; ``passed`` is true only if every shard passed.  Reports must share

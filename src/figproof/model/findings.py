@@ -20,6 +20,15 @@ def renamed_note(old: str, new: str) -> str:
 
 
 @model
+class Detail(Serialisable):
+    """One occurrence inside a grouped hit: a clashing pair, one panel, one script."""
+
+    message: str
+    source: Source | None = None
+    axes: int | None = None
+
+
+@model
 class Hit(Serialisable):
     """What a rule yields: one fact with its counted evidence.
 
@@ -27,6 +36,13 @@ class Hit(Serialisable):
     rule's default severity/confidence (unless the hit overrides them), the
     figure id and a fallback location.  ``key`` is a short stable detail
     (e.g. ``"bars:0"``) that makes fingerprints survive unrelated edits.
+
+    One hit is one cause.  A rule that finds the same cause several times in
+    one axes (say five clashing colour pairs) yields one hit whose
+    ``details`` list each occurrence, worst first.  Hits of one figure with
+    the same key in several axes become one finding naming the panels; hits
+    with the same non-empty ``group`` become one finding across the whole
+    check (one missing package named by several scripts).
     """
 
     message: str
@@ -35,6 +51,20 @@ class Hit(Serialisable):
     confidence: Confidence | None = None
     severity: Severity | None = None
     key: str = ""
+    details: tuple[Detail, ...] = ()
+    group: str = ""
+
+
+@model
+class Instance(Serialisable):
+    """One located occurrence of a finding's cause (JSON ``instances``, SARIF related locations)."""
+
+    message: str
+    path: str
+    line: int | None = None
+    cell: int | None = None
+    figure: str | None = None
+    axes: int | None = None
 
 
 @model
@@ -54,6 +84,7 @@ class Finding(Serialisable):
     fingerprint: str = ""
     accepted: str | None = None  # the reason, when an allow comment or accepted-findings entry covers it
     accepted_by: str | None = None  # "comment" (inline allow) or "file" (accepted-findings entry)
+    instances: tuple[Instance, ...] = ()  # every occurrence this one finding stands for, worst first
 
     def sort_key(self) -> tuple[str, int, str, str]:
         return (self.path, self.line or 0, self.rule, self.message)

@@ -1,14 +1,14 @@
-"""The JSON report (schema 1): the contract other tools read.  See docs/json-report.md."""
+"""The JSON report (schema 2): the contract other tools read.  See docs/json-report.md."""
 
 from __future__ import annotations
 
 import json
 from typing import Any
 
-from figproof.model.findings import CheckResult, Finding
+from figproof.model.findings import CheckResult, Finding, Instance
 from figproof.model.records import ScriptRun
 
-SCHEMA = 1
+SCHEMA = 2  # 2: every finding lists its instances (one finding per cause)
 
 
 def _script(run: ScriptRun, timings: bool) -> dict[str, Any]:
@@ -33,6 +33,13 @@ def _script(run: ScriptRun, timings: bool) -> dict[str, Any]:
     return out
 
 
+def _instance(i: Instance) -> dict[str, Any]:
+    out: dict[str, Any] = {"message": i.message, "path": i.path, "line": i.line, "figure": i.figure, "axes": i.axes}
+    if i.cell is not None:
+        out["cell"] = i.cell
+    return out
+
+
 def finding_json(f: Finding) -> dict[str, Any]:
     out: dict[str, Any] = {
         "rule": f.rule, "severity": f.severity, "confidence": f.confidence, "path": f.path, "line": f.line,
@@ -40,6 +47,7 @@ def finding_json(f: Finding) -> dict[str, Any]:
     }
     if f.cell is not None:
         out["cell"] = f.cell
+    out["instances"] = [_instance(i) for i in f.instances]
     if f.accepted is not None:
         out["accepted"] = f.accepted
     return out

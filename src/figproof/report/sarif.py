@@ -1,7 +1,8 @@
 """SARIF 2.1.0 output (the OASIS standard that code-hosting platforms ingest).
 
 One run; the driver lists every rule of the catalogue with its summary, why,
-fix and default level; each finding becomes a result located in the repo
+fix and default level; each finding becomes one result located in the repo, its instances
+(when one finding stands for several occurrences of a cause) its related locations
 (``uriBaseId`` ``REPOROOT``).  Notebook lines count inside a cell, not inside
 the .ipynb file, so a notebook result carries no region: its cell and line
 go into the message instead.  Accepted findings stay in the log as
@@ -15,7 +16,7 @@ from collections.abc import Sequence
 from typing import Any
 from urllib.parse import quote
 
-from figproof.model.findings import CheckResult, Finding
+from figproof.model.findings import CheckResult, Finding, Instance
 from figproof.rules.base import Rule
 
 SCHEMA_URI = "https://docs.oasis-open.org/sarif/sarif/v2.1.0/errata01/os/schemas/sarif-schema-2.1.0.json"
@@ -59,6 +60,15 @@ def _descriptor(r: Rule) -> dict[str, Any]:
     }
 
 
+def _related(k: int, i: Instance) -> dict[str, Any]:
+    """One instance of a grouped finding as a SARIF related location (SARIF 2.1.0 §3.27.22)."""
+    physical: dict[str, Any] = {"artifactLocation": {"uri": _uri(i.path), "uriBaseId": BASE_ID}}
+    if i.cell is None and i.line is not None and i.line >= 1:
+        physical["region"] = {"startLine": i.line}
+    text = i.message if i.cell is None else f"{i.message} (cell {i.cell}" + (f", line {i.line})" if i.line else ")")
+    return {"id": k, "physicalLocation": physical, "message": {"text": text}}
+
+
 def _result(f: Finding, index: dict[str, int]) -> dict[str, Any]:
     where = _where(f)
     text = f"{f.message} ({where})" if where else f.message
@@ -79,6 +89,9 @@ def _result(f: Finding, index: dict[str, int]) -> dict[str, Any]:
         "locations": [{"physicalLocation": physical}],
         "properties": props,
     }
+    related = [_related(k, i) for k, i in enumerate(f.instances) if len(f.instances) > 1]
+    if related:
+        out["relatedLocations"] = related
     if f.rule in index:
         out["ruleIndex"] = index[f.rule]
     if f.fingerprint:

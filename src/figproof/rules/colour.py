@@ -7,15 +7,18 @@ docstring says which marks count as series); colour maps are judged in
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 from collections.abc import Iterator
+from dataclasses import dataclass
 
 import numpy as np
 
-from figproof.model.findings import Hit
+from figproof.model.findings import Detail, Hit
 from figproof.model.records import Axes, ColorMapping, FigureModel, Source, Text
 from figproof.rules._colormaps import MapProblem, judge_cached, judge_colormap
 from figproof.rules._series import (
+    AxesPairs,
     Series,
     axes_background,
     axes_pairs,
@@ -190,6 +193,8 @@ _SERIES_KNOBS = (
              help="a'b' distance of a pair in normal vision from which its hue difference matters"),
         Knob(name="hue_lost", default=5.0, minimum=0.0,
              help="a'b' distance under simulation below which that hue difference counts as lost"),
+        Knob(name="lightness_left", default=15.0, minimum=0.0,
+             help="J' difference below which a pair whose hue difference is lost is hard to tell apart"),
         *_SERIES_KNOBS,
     ),
     why="""
@@ -254,43 +259,87 @@ def colours_confusable_cvd(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
     # every colour of the figure goes through one simulation/conversion batch
     sizes = [g.rgb.shape[0] for g in groups]
     ucs_all = cs.vision_ucs(np.concatenate([g.rgb for g in groups]), severity)
-    limit = float(knobs["delta_e"])
     start = 0
     for g, size in zip(groups, sizes, strict=True):
         ucs = ucs_all[:, start : start + size]
         start += size
-        de = cs.pairwise_delta_e(ucs)  # (4, n, n)
-        ab = cs.pairwise_delta_e(ucs[..., 1:])  # distance in the a'b' plane: hue and chroma only
-        for i, j in g.pairs:
-            a, b = g.series[i], g.series[j]
-            names = f"{series_name(a, g.hexes[i])} and {series_name(b, g.hexes[j])}"
-            d = {v: float(de[k, i, j]) for k, v in enumerate(cs.VISIONS)}
-            source = b.source or a.source
-            key = f"{g.hexes[i]}/{g.hexes[j]}"
-            strict = [v for v in ("normal", "protan", "deutan") if d[v] < limit]
-            if strict:
-                # a pair that is already too close for normal vision is reported as such
-                worst = "normal" if "normal" in strict else min(strict, key=lambda v: d[v])
-                vision = "normal vision" if worst == "normal" else f"simulated {worst} vision"
-                also = [f"{v} {d[v]:.1f}" for v in strict if v != worst]
-                extra = f" (also {', '.join(also)})" if also else ""
-                yield Hit(message=f"{names} differ by ΔE' {d[worst]:.1f} under {vision}, below {limit:g}{extra}",
-                          source=source, axes=g.axes, key=f"{key}/{worst}")
+        clashes = sorted(_cvd_clashes(g, ucs, knobs), key=lambda c: (_RANK[c.severity], c.distance))
+        if clashes:
+            yield _pairs_hit(g, clashes, "cvd")
+
+
+@dataclass(frozen=True, slots=True)
+class _Clash:
+    """One clashing pair of an axes: how bad, in plain words and numbers."""
+
+    severity: str
+    distance: float
+    message: str
+    source: Source | None
+    key: str
+
+
+_RANK = {"error": 0, "warning": 1, "note": 2}
+_READERS = {"protan": "red-green colour blindness", "deutan": "red-green colour blindness",
+            "tritan": "blue-yellow colour blindness"}
+
+
+def _cvd_clashes(g: AxesPairs, ucs: np.ndarray, knobs: Knobs) -> Iterator[_Clash]:
+    de = cs.pairwise_delta_e(ucs)  # (4, n, n)
+    ab = cs.pairwise_delta_e(ucs[..., 1:])  # distance in the a'b' plane: hue and chroma only
+    limit = float(knobs["delta_e"])
+    for i, j in g.pairs:
+        a, b = g.series[i], g.series[j]
+        names = f"{series_name(a, g.hexes[i])} and {series_name(b, g.hexes[j])}"
+        d = {v: float(de[k, i, j]) for k, v in enumerate(cs.VISIONS)}
+        source = b.source or a.source
+        key = f"{g.hexes[i]}/{g.hexes[j]}"
+        strict = [v for v in ("normal", "protan", "deutan") if d[v] < limit]
+        if strict:
+            if "normal" in strict:
+                yield _Clash("error", d["normal"], f"{names} are hard to tell apart even with normal colour vision "
+                             f"(colour difference ΔE' {d['normal']:.1f} in CAM02-UCS, below {limit:g})", source,
+                             f"{key}/normal")
                 continue
-            if d["tritan"] < limit:
-                yield Hit(message=f"{names} differ by ΔE' {d['tritan']:.1f} under simulated tritan vision, "
-                                  f"below {limit:g}",
-                          source=source, axes=g.axes, severity="warning", key=f"{key}/tritan")
-                continue
-            normal_ab = float(ab[0, i, j])
-            if normal_ab >= knobs["hue_chroma"]:
-                lost = [(float(ab[k, i, j]), v) for k, v in enumerate(cs.VISIONS)
-                        if k and ab[k, i, j] < knobs["hue_lost"]]
-                if lost:
-                    value, v = min(lost)
-                    yield Hit(message=f"{names} keep only their lightness difference under simulated {v} vision: "
-                                      f"their a'b' (hue) distance drops from {normal_ab:.1f} to {value:.1f}",
-                              source=source, axes=g.axes, severity="warning", key=f"{key}/hue-{v}")
+            worst = min(strict, key=lambda v: d[v])
+            also = [f"{v} {d[v]:.1f}" for v in strict if v != worst]
+            extra = f"; {', '.join(also)} for the other form" if also else ""
+            yield _Clash("error", d[worst], f"{names} look the same to readers with {_READERS[worst]} "
+                         f"(simulated {worst} vision: colour difference ΔE' {d[worst]:.1f}{extra}, below {limit:g})", source,
+                         f"{key}/{worst}")
+            continue
+        if d["tritan"] < limit:
+            yield _Clash("warning", d["tritan"], f"{names} look alike to readers with {_READERS['tritan']} "
+                         f"(simulated tritan vision: colour difference ΔE' {d['tritan']:.1f}, below {limit:g})", source,
+                         f"{key}/tritan")
+            continue
+        normal_ab = float(ab[0, i, j])
+        if normal_ab < knobs["hue_chroma"]:
+            continue
+        # the pair keeps its lightness difference; only when too little lightness is left is that a problem
+        lost = [(float(ab[k, i, j]), v) for k, v in enumerate(cs.VISIONS)
+                if k and ab[k, i, j] < knobs["hue_lost"]
+                and abs(float(ucs[k, i, 0] - ucs[k, j, 0])) < knobs["lightness_left"]]
+        if lost:
+            value, v = min(lost)
+            k = cs.VISIONS.index(v)
+            left = abs(float(ucs[k, i, 0] - ucs[k, j, 0]))
+            yield _Clash("warning", left, f"{names} differ only a little in lightness for readers with {_READERS[v]}: "
+                         f"their hue difference is lost under simulated {v} vision (a'b' distance {normal_ab:.1f} drops to {value:.1f}) and "
+                         f"the lightness difference left, J' {left:.1f}, is below {knobs['lightness_left']:g}",
+                         source, f"{key}/hue-{v}")
+
+
+def _pairs_hit(g: AxesPairs, clashes: list[_Clash], what: str) -> Hit:
+    """One finding per axes: the worst pair in words, how many more clash, every pair as a detail."""
+    head = clashes[0]
+    rest = len(clashes) - 1
+    more = f"; {rest} more pair{'s' * (rest != 1)} of this axes clash{'es' * (rest == 1)}" if rest else ""
+    hexes = sorted({h for c in clashes for h in c.key.split("/")[:2]})
+    return Hit(message=head.message + more, source=head.source, axes=g.axes,
+               severity=None if head.severity == "error" else head.severity,
+               key=f"{what}:{','.join(hexes)}",
+               details=tuple(Detail(message=c.message, source=c.source, axes=g.axes) for c in clashes))
 
 
 # --------------------------------------------------------------------------
@@ -354,14 +403,18 @@ def colours_confusable_gray(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
     for g in groups:
         lstar = lightness[start : start + g.rgb.shape[0]]
         start += g.rgb.shape[0]
+        clashes = []
         for i, j in g.pairs:
             gap = float(abs(lstar[i] - lstar[j]))
             if gap < limit:
                 a, b = g.series[i], g.series[j]
-                yield Hit(message=f"{series_name(a, g.hexes[i])} and {series_name(b, g.hexes[j])} have CIE L* "
-                                  f"{lstar[i]:.1f} and {lstar[j]:.1f} (difference {gap:.1f}, below {limit:g}) and "
-                                  f"look alike in grayscale",
-                          source=b.source or a.source, axes=g.axes, key=f"{g.hexes[i]}/{g.hexes[j]}")
+                clashes.append(_Clash(
+                    "note", gap, f"{series_name(a, g.hexes[i])} and {series_name(b, g.hexes[j])} look alike in "
+                    f"grayscale print (lightness CIE L* {lstar[i]:.1f} and {lstar[j]:.1f}, difference {gap:.1f}, "
+                    f"below {limit:g})", b.source or a.source, f"{g.hexes[i]}/{g.hexes[j]}"))
+        if clashes:
+            hit = _pairs_hit(g, sorted(clashes, key=lambda c: c.distance), "gray")
+            yield dataclasses.replace(hit, severity=None)
 
 
 # --------------------------------------------------------------------------
