@@ -261,9 +261,15 @@ def test_series_kinds_and_none_faces() -> None:
     hollow = points([0.2], [0.3], color=green, label="hollow")
     hollow = type(hollow)(**{**{f: getattr(hollow, f) for f in hollow.__dataclass_fields__},
                              "facecolors": np.array([[0.0, 0.0, 0.0, 0.0]])})  # 'none' faces: edges count
-    ax = axes(bars=[bars([1, 2], color=red, label="bars")], points=[hollow])
+    # a legend keys both colours: they must be told apart
+    legend = [Patch(kind="legend-entry", facecolor=c) for c in (red, green)]
+    ax = axes(bars=[bars([1, 2], color=red, label="bars")], points=[hollow], patches=legend,
+              legend_labels=("bars", "hollow"))
     hits = run(colour.colours_confusable_cvd, figure(ax))
     assert len(hits) == 1 and "#2ca02c" in hits[0].message and "'bars'" in hits[0].message
+    # without a legend, bars and points are told apart by their shapes: colour is not what names them
+    bare = axes(bars=[bars([1, 2], color=red, label="bars")], points=[hollow])
+    assert run(colour.colours_confusable_cvd, figure(bare)) == []
 
 
 def test_per_point_colours_and_colour_mapped_points() -> None:

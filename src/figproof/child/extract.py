@@ -113,7 +113,18 @@ def _axis(ax: MplAxes, which: str) -> Axis:
     return Axis(lim=(float(lim[0]), float(lim[1])),
                 scale=ax.get_xscale() if which == "x" else ax.get_yscale(),
                 label=axis.get_label_text(), inverted=bool(lim[0] > lim[1]),
-                categorical="Category" in converter, dates="Date" in converter, ticks=ticks)
+                categorical="Category" in converter, dates="Date" in converter, ticks=ticks,
+                autoscaled=bool(ax.get_autoscalex_on() if which == "x" else ax.get_autoscaley_on()),
+                shared=_shared(ax, which))
+
+
+def _shared(ax: MplAxes, which: str) -> bool:
+    """True when the axis shares its limits with a sibling axes (sharex/sharey, or seaborn's grids)."""
+    try:
+        group = ax.get_shared_x_axes() if which == "x" else ax.get_shared_y_axes()
+        return len(group.get_siblings(ax)) > 1
+    except (AttributeError, TypeError):
+        return False
 
 
 class _AxesExtractor:
@@ -424,7 +435,8 @@ class _AxesExtractor:
                     is_colorbar=cbar is not None, points=tuple(self.points), lines=tuple(self.lines),
                     bars=tuple(self.bars), errorbars=tuple(self.errorbars), boxes=tuple(self.boxes),
                     violins=tuple(self.violins), colormaps=tuple(self.colormaps), texts=tuple(self.texts),
-                    patches=tuple(self.patches), legend_labels=labels, legend_box=legend_box)
+                    patches=tuple(self.patches), legend_labels=labels, legend_box=legend_box,
+                    axis_on=bool(ax.axison))
 
 
 def _label(artist: Any) -> str:

@@ -367,6 +367,8 @@ class Axis(Serialisable):
     categorical: bool = False
     dates: bool = False
     ticks: tuple[tuple[float, str], ...] = ()  # major tick positions with their labels, as drawn
+    autoscaled: bool = True  # False when the script set the limits itself (set_xlim, set_ylim, seaborn's grids)
+    shared: bool = False  # the limits are shared with a sibling axes (sharex/sharey)
 
 
 @model
@@ -392,6 +394,7 @@ class Axes(Serialisable):
     patches: tuple[Patch, ...] = ()
     legend_labels: tuple[str, ...] = ()
     legend_box: tuple[float, float, float, float] | None = None
+    axis_on: bool = True  # False after ax.axis("off") / set_axis_off(): a picture or a pie, not a plot
 
 
 # --------------------------------------------------------------------------

@@ -1,26 +1,31 @@
 """What the colour rules measure: backgrounds, and the colours that must be told apart in one axes.
 
-Which colours "must be told apart" in one axes (the series of that axes):
+The colour-pair rules judge only colours that *name categories*: colours a reader must match to a key
+to know which series is which.  Candidates, per axes:
 
-- each point set (scatter collection or markers of a line) that is not colour-mapped
-  (``PointSet.colormap is None``): its face colour, or its edge colour where the faces are
-  transparent (``'none'`` faces arrive as alpha 0); a point set with several colours per
-  point contributes each distinct colour as a category (seaborn ``hue=``, ``c=[list]``);
+- each point set that is not colour-mapped (``PointSet.colormap is None``): its face colour, or its
+  edge colour where the faces are transparent; several colours per point set (seaborn ``hue=``) each
+  count;
 - each line with ``role == "data"`` (error-bar, reference, box and violin lines are not series);
-- each bar set: its face colours (several when bars are coloured one by one), edge colour for
-  hollow bars;
-- each filled area (``Patch.kind`` ``"fill"`` or ``"polygon"``: fill_between, stackplot, violin
-  bodies, hand-drawn polygons);
-- each distinct colour of a colour map with few colours (``ColorMapping.n_colors`` at most
-  ``palette_max_colors``) drawn as an image or mesh, since such a map labels categories;
-  a map whose few colours are ordered in lightness is a stepped continuous map and is judged
-  as a map instead.  Scatter ``c=`` maps are skipped here: the point set already gives the
-  colours actually used.
+- each bar set: its face colours (several when bars are coloured one by one);
+- each filled area (``Patch.kind`` ``"fill"`` or ``"polygon"``) that is not a background band (a shape
+  as wide or as tall as the whole axes: ``axvspan``/``axhspan``);
+- each distinct colour of a colour map with few colours drawn as an image or mesh.
 
-Legend entries enter through the artists they label (their labels name the colours in
-messages).  Colours are blended over the axes background before any measurement, identical
-drawn colours count once, and two series drawn in the same base colour (say a line and its
-translucent band) or with the same label are one series drawn twice, never a clashing pair.
+Which of them must be told apart by colour:
+
+- when the axes has a legend: the colours the legend shows (its entries' colours, or a series whose
+  label is in it); colours the legend does not name are not keyed by colour;
+- without a legend: lines and points (colour alone tells them apart) unless as many direct labels
+  (annotations) sit in the axes; bar sets only where they share positions (groups at their own
+  positions, and bars coloured one by one under their tick labels, are told apart by where they stand);
+  filled areas only when they are the data (no lines or points in the axes) and are not labelled
+  directly; nothing in an axes with its axis turned off (a picture, a labelled pie).
+
+Colours that step along one lightness ramp (:func:`looks_sequential`: bars coloured by height, lines drawn
+from a sequential map, a 12-step palette) encode an ordered value and are left to the colour-map rule.
+Colours are blended over the axes background before any measurement, identical drawn colours count
+once, and two series drawn in the same base colour or with the same label are one series drawn twice.
 """
 
 from __future__ import annotations
@@ -116,37 +121,156 @@ def palette_colors(cm: ColorMapping, max_colors: float) -> np.ndarray:
     return rows
 
 
-def axes_series(ax: Axes, *, palette_max_colors: float, max_colors: float) -> list[Series]:
-    """The colours of ``ax`` that must be told apart, in drawing-list order (see the module doc)."""
-    found: list[Series] = []
+def looks_sequential(rgb: np.ndarray) -> bool:
+    """True when three or more colours lie along one lightness ramp: the steps of a sequential map.
 
-    def add(colors: np.ndarray, label: str, what: str, source: Source | None) -> None:
+    Colours drawn from a sequential map (viridis, Blues, a 20-step palette) encode an ordered value.  Taken
+    in order of lightness J' (CAM02-UCS) they form a nearly straight path whose hue turns one way in small
+    steps; a qualitative palette (tab10, Okabe & Ito, seaborn's deep) zigzags: its path in order of
+    lightness is much longer than the distance between its ends, and its hue jumps.  Decided from the
+    colours alone.  Limits (path at most 1.42 times the end-to-end distance, hue steps up to 70 degrees,
+    at most 20 degrees against the turn) from matplotlib's and seaborn's maps and palettes: common practice.
+    """
+    if rgb.shape[0] < 3:
+        return False
+    ucs = cs.srgb_to_ucs(rgb)[np.argsort(cs.srgb_to_ucs(rgb)[:, 0])]
+    if np.min(np.diff(ucs[:, 0])) < 1.0:
+        return False  # two colours of (almost) one lightness: not a ramp
+    path = float(np.linalg.norm(np.diff(ucs, axis=0), axis=1).sum())
+    ends = float(np.linalg.norm(ucs[-1] - ucs[0]))
+    if ends <= 0.0 or path > 1.42 * ends:
+        return False
+    chroma = np.hypot(ucs[:, 1], ucs[:, 2])
+    coloured = chroma >= 10.0  # near-grays have no meaningful hue (cividis passes through gray)
+    if coloured.sum() < 2:
+        return True  # a gray ramp
+    hue = np.arctan2(ucs[:, 2], ucs[:, 1])
+    neighbours = coloured[:-1] & coloured[1:]  # a step through a gray has no hue to turn
+    steps = np.degrees(np.angle(np.exp(1j * (hue[1:] - hue[:-1]))))[neighbours]
+    if steps.size == 0:
+        return True
+    return bool(np.max(np.abs(steps)) <= 70.0 and (np.all(steps >= -20.0) or np.all(steps <= 20.0)))
+
+
+def _same_color(a: np.ndarray, b: np.ndarray) -> bool:
+    return bool(np.max(np.abs(a[:3] - b[:3])) <= 0.02)
+
+
+def _legend_colors(ax: Axes) -> np.ndarray:
+    rows = [p.facecolor for p in ax.patches if p.kind == "legend-entry"]
+    return cs.as_rgba(np.asarray(rows, float)) if rows else np.zeros((0, 4))
+
+
+@dataclass(frozen=True, slots=True)
+class _Artist:
+    """The colours one artist contributes, before deciding whether colour is what names them."""
+
+    colors: np.ndarray  # distinct RGBA rows
+    label: str
+    what: str
+    source: Source | None
+    span: tuple[float, float] = (0.0, 0.0)  # bars: the range of positions they occupy
+    decorative: bool = False
+
+
+def _spans_axes(box: tuple[float, float, float, float], ax: Axes) -> bool:
+    """A shape as wide or as tall as the whole axes: a background band (axvspan/axhspan), not data."""
+    x0, y0, x1, y1 = ax.display_box
+    w, h = x1 - x0, y1 - y0
+    bw, bh = box[2] - box[0], box[3] - box[1]
+    return (w > 0 and bw >= 0.98 * w and bh < 0.98 * h) or (h > 0 and bh >= 0.98 * h and bw < 0.98 * w)
+
+
+def _artists(ax: Axes, palette_max_colors: float, max_colors: float) -> list[_Artist]:
+    found: list[_Artist] = []
+
+    def add(colors: np.ndarray, label: str, what: str, source: Source | None, **kw: object) -> None:
         rows = distinct_rows(colors)
         rows = rows[rows[:, 3] > 0.0] if rows.shape[0] else rows
-        if rows.shape[0] > max_colors:
+        if rows.shape[0] == 0 or rows.shape[0] > max_colors:
             return  # so many colours encode a continuous variable, not categories
-        for k, row in enumerate(rows):
-            name = label if rows.shape[0] == 1 else (f"{label} {k + 1}" if label else "")
-            found.append(Series(tuple(float(v) for v in row), name, what, source))  # type: ignore[arg-type]
+        found.append(_Artist(rows, label, what, source, **kw))  # type: ignore[arg-type]
 
-    if ax.is_colorbar:
-        return found
     for ps in ax.points:
-        if ps.colormap is not None:
-            continue
-        add(visible_colors(ps.facecolors, ps.edgecolors), public_label(ps.label), "points", ps.source)
+        if ps.colormap is None and ps.x.size:
+            add(visible_colors(ps.facecolors, ps.edgecolors), public_label(ps.label), "points", ps.source)
     for ln in ax.lines:
         if ln.role == "data" and ln.linestyle not in ("", " ", "None", "none"):
             add(np.asarray([ln.color], float), public_label(ln.label), "line", ln.source)
     for bs in ax.bars:
-        add(visible_colors(bs.facecolors, bs.edgecolors), public_label(bs.label), "bars", bs.source)
+        if bs.positions.size:
+            lo = float(np.nanmin(bs.positions - bs.widths / 2)) if bs.widths.size else float(np.nanmin(bs.positions))
+            hi = float(np.nanmax(bs.positions + bs.widths / 2)) if bs.widths.size else float(np.nanmax(bs.positions))
+            add(visible_colors(bs.facecolors, bs.edgecolors), public_label(bs.label), "bars", bs.source, span=(lo, hi))
     for patch in ax.patches:
         if patch.kind in ("fill", "polygon"):
             add(visible_colors(np.asarray([patch.facecolor]), np.asarray([patch.edgecolor])),
-                public_label(patch.label), "area", patch.source)
+                public_label(patch.label), "area", patch.source, decorative=_spans_axes(patch.display_box, ax))
     for cm in ax.colormaps:
         if cm.kind != "scatter" and cm.kind != "colorbar":
             add(palette_colors(cm, palette_max_colors), public_label(cm.name), "category", cm.source)
+    return found
+
+
+def _keyed_by_colour(ax: Axes, artists: list[_Artist]) -> list[_Artist]:
+    """The artists whose colours are what names their categories (see the module doc)."""
+    legend = _legend_colors(ax)
+    labels = {lab for lab in ax.legend_labels if lab}
+    out: list[_Artist] = []
+    for art in artists:
+        if art.decorative:
+            continue
+        if ax.legend_labels:
+            # a legend names the colours it shows: only those must be told apart
+            keep = [row for row in art.colors if any(_same_color(row, c) for c in legend)]
+            if not keep and art.label and art.label in labels:
+                keep = list(art.colors)
+            if keep:
+                out.append(_Artist(np.asarray(keep), art.label, art.what, art.source, art.span))
+            continue
+        out.append(art)
+    if ax.legend_labels:
+        return out
+    return _without_redundant(ax, out)
+
+
+def _without_redundant(ax: Axes, artists: list[_Artist]) -> list[_Artist]:
+    """No legend: drop colours that position, tick labels or direct labels already tell apart."""
+    if not ax.axis_on:
+        return []  # a picture or a directly labelled pie: nothing keys its colours
+    direct = sum(1 for t in ax.texts if t.role == "annotation" and t.text.strip())
+    data = [a for a in artists if a.what in ("line", "points")]
+    bars = [a for a in artists if a.what == "bars"]
+    out = [a for a in artists if a.what == "category"]
+    if data and direct < len(data):
+        out += data
+    # bars coloured one by one sit at their own positions under their tick labels; bar sets that do not
+    # share positions are told apart by where they stand
+    shared = [b for b in bars if b.colors.shape[0] == 1 and any(
+        o is not b and o.span[0] < b.span[1] and b.span[0] < o.span[1] for o in bars)]
+    out += shared
+    areas = [a for a in artists if a.what == "area"]
+    if areas and not data and direct < len(areas):
+        out += areas  # filled areas are the data (a stack plot), not shading below lines
+    return out
+
+
+def axes_series(ax: Axes, *, palette_max_colors: float, max_colors: float) -> list[Series]:
+    """The colours of ``ax`` that must be told apart, in drawing-list order (see the module doc)."""
+    if ax.is_colorbar:
+        return []
+    artists = _keyed_by_colour(ax, _artists(ax, palette_max_colors, max_colors))
+    # one artist coloured through a ramp (bars coloured by height, a sequential hue palette) is a map
+    artists = [a for a in artists if not looks_sequential(a.colors[:, :3])]
+    found: list[Series] = []
+    for art in artists:
+        for k, row in enumerate(art.colors):
+            name = art.label if art.colors.shape[0] == 1 else (f"{art.label} {k + 1}" if art.label else "")
+            found.append(Series(tuple(float(v) for v in row), name, art.what, art.source))  # type: ignore[arg-type]
+    # several artists whose colours step in lightness (lines drawn from a sequential map) are a map too
+    colors = np.array([s.rgba[:3] for s in found]) if found else np.zeros((0, 3))
+    if looks_sequential(distinct_rows(np.c_[colors, np.ones(len(colors))])[:, :3] if len(colors) else colors):
+        return []
     return found
 
 

@@ -201,12 +201,14 @@ _SERIES_KNOBS = (
         About 8% of men and 0.5% of women of Northern European ancestry have a red-green colour-vision
         deficiency (protan or deutan); tritan vision is much rarer. In most review chains someone cannot
         tell a red series from a green one, and a legend that relies on that difference leaves them
-        guessing which curve is which. figproof takes the colours a reader must tell apart in each axes
-        (lines, point sets, bar groups, filled areas, few-colour palettes), blends them over the axes
-        background, simulates protan, deutan and tritan vision with the Machado et al. (2009) model and
+        guessing which curve is which. figproof takes the colours a reader must tell apart in each axes:
+        series and hue levels named by a legend, or told apart by colour alone (not bars that stand
+        under their own tick labels, slices labelled directly, or colours that step along a lightness
+        ramp, which encode an ordered value), blends them over the axes background, simulates protan, deutan and tritan vision with the Machado et al. (2009) model and
         measures every pair's perceptual distance ΔE' in CAM02-UCS. Pairs closer than the limit for
-        normal, protan or deutan vision are errors; for tritan vision, or when a pair keeps only its
-        lightness difference, they are warnings.
+        normal, protan or deutan vision are errors; for tritan vision, or when a pair loses its hue
+        difference and keeps too little lightness difference, they are warnings. All clashing pairs of
+        one axes are one finding, worst first.
     """,
     fix="""
         Choose a palette designed for colour-blind readers, such as Okabe & Ito's
@@ -223,7 +225,7 @@ _SERIES_KNOBS = (
         "friendly to colorblind people (from memory).",
         "Prevalence of about 8% of men and 0.5% of women of Northern European ancestry: widely cited figure "
         "(from memory).",
-        "ΔE' limit 10 and the a'b' limits 20/5: common practice.",
+        "ΔE' limit 10, the a'b' limits 20/5 and the J' 15 left: common practice.",
     ),
     bad="""
         import matplotlib
