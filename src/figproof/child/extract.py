@@ -21,6 +21,7 @@ from matplotlib.lines import Line2D
 from matplotlib.patches import Rectangle
 from matplotlib.text import Text as MplText
 
+from figproof.child.backdrop import backdrop_at
 from figproof.child.capture import Recorder
 from figproof.model.records import (
     RGBA,
@@ -326,7 +327,8 @@ class _AxesExtractor:
             kind="scatter", x=data[:, 0], y=data[:, 1], px=display[:, 0], py=display[:, 1],
             sizes=sizes if sizes.size else np.array([36.0]), facecolors=_rgba_array(coll.get_facecolor()),
             edgecolors=_rgba_array(coll.get_edgecolor()), alpha=coll.get_alpha(), zorder=float(coll.get_zorder()),
-            label=_label(coll), colormap=cmap_index, source=_src(coll), draw_order=self.order.get(id(coll))))
+            label=_label(coll), colormap=cmap_index, source=_src(coll), draw_order=self.order.get(id(coll)),
+            backdrops=_backdrops(self.ax, display, float(coll.get_zorder()), coll)))
 
     def images(self) -> None:
         for im in self.ax.images:
@@ -390,11 +392,14 @@ class _AxesExtractor:
             cx, cy = (box[0] + box[2]) / 2, (box[1] + box[3]) / 2
             in_axes = x0 <= cx <= x1 and y0 <= cy <= y1
         weight = t.get_fontweight()
+        backdrop = None
+        if in_axes and role != "legend" and bbox is None:
+            backdrop = backdrop_at(self.ax, (box[0] + box[2]) / 2, (box[1] + box[3]) / 2, float(t.get_zorder()), t)
         self.texts.append(Text(text=content[:200], role=role, color=_rgba(t.get_color()), background=background,
                                fontsize=float(t.get_fontsize()),
                                weight=str(weight) if not isinstance(weight, (int, float)) else
                                ("bold" if weight >= 600 else "normal"),
-                               display_box=box, in_axes=in_axes, source=_src(t)))
+                               display_box=box, in_axes=in_axes, source=_src(t), backdrop=backdrop))
 
     def legend(self) -> tuple[tuple[str, ...], tuple[float, float, float, float] | None]:
         leg = self.ax.get_legend()
@@ -510,7 +515,23 @@ def _line_points(ax: MplAxes, ln: Line2D, draw_order: int | None = None) -> Poin
                     facecolors=_rgba_array([face], alpha) if face not in ("none", "None") else np.zeros((1, 4)),
                     edgecolors=_rgba_array([ln.get_markeredgecolor()], alpha), alpha=alpha,
                     marker=str(ln.get_marker()), zorder=float(ln.get_zorder()), label=_label(ln), source=_src(ln),
-                    draw_order=draw_order)
+                    draw_order=draw_order, backdrops=_backdrops(ax, display, float(ln.get_zorder()), ln))
+
+
+_BACKDROP_POINTS = 200  # more markers than this: their backdrop is the axes face (a dense cloud covers itself)
+
+
+def _backdrops(ax: MplAxes, display: np.ndarray, zorder: float, artist: Any) -> np.ndarray:
+    """N×4 colours beneath each marker (NaN rows where only the axes face is), or empty for big sets."""
+    if display.shape[0] == 0 or display.shape[0] > _BACKDROP_POINTS:
+        return np.zeros((0, 4))
+    out = np.full((display.shape[0], 4), np.nan)
+    for k, (x, y) in enumerate(display):
+        if np.isfinite(x) and np.isfinite(y):
+            under = backdrop_at(ax, float(x), float(y), zorder, skip=artist)
+            if under is not None:
+                out[k] = under
+    return out
 
 
 def _errorbar_segment(ln: Line2D) -> tuple[float, float, float, bool] | None:

@@ -218,6 +218,7 @@ class PointSet(Serialisable):
     colormap: int | None = None  # index into Axes.colormaps when c= mapped values
     source: Source | None = None
     draw_order: int | None = None  # index among the axes' children: matplotlib draws equal z-orders in this order
+    backdrops: Array = _arr()  # N×4: the colour beneath each marker (NaN: the axes face); empty when not measured
 
 
 @model
@@ -340,6 +341,7 @@ class Text(Serialisable):
     display_box: tuple[float, float, float, float] = (0.0, 0.0, 0.0, 0.0)
     in_axes: bool = True
     source: Source | None = None
+    backdrop: RGBA | None = None  # the opaque colour beneath the text (image cell, bar, patch), None: the face
 
 
 @model

@@ -1,0 +1,106 @@
+"""The colour really beneath a text or a marker: what a reader sees around it.
+
+Contrast must be judged against what is behind a mark, not against the axes face: white numbers on the
+dark cells of a heat map, a white median dot inside a violin, a label on an image.  After the figure is
+drawn, :func:`backdrop_at` asks each artist of the axes drawn below the mark whether it covers the point
+(matplotlib's own ``contains``, so polygons, violin bodies and mesh cells are exact), takes its colour
+there (an image's or mesh's colour-mapped value, a patch's face) and blends the stack over the axes face
+in drawing order.  Runs in the child, which alone may touch matplotlib objects.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+RGBA = tuple[float, float, float, float]
+
+
+def _over(top: np.ndarray, under: np.ndarray) -> np.ndarray:
+    a = float(np.clip(top[3], 0.0, 1.0))
+    return np.r_[top[:3] * a + under[:3] * (1.0 - a), 1.0]
+
+
+def _event(ax: Any, x: float, y: float) -> Any:
+    from matplotlib.backend_bases import MouseEvent
+
+    return MouseEvent("motion_notify_event", ax.figure.canvas, x, y)
+
+
+def _color_at(artist: Any, event: Any) -> np.ndarray | None:
+    """The colour ``artist`` paints at the event's point, or None when it does not cover it."""
+    from matplotlib.collections import Collection
+    from matplotlib.image import AxesImage
+    from matplotlib.patches import Patch
+
+    try:
+        if isinstance(artist, AxesImage):
+            if not artist.get_window_extent().contains(event.x, event.y):
+                return None
+            value = artist.get_cursor_data(event)
+            if value is None:
+                return None
+            rgba = np.asarray(artist.to_rgba(value) if np.ndim(value) == 0 else value, float).ravel()
+            if rgba.size == 3:
+                rgba = np.r_[rgba, 1.0]
+            if rgba.max() > 1.0:
+                rgba = rgba / 255.0
+            alpha = artist.get_alpha()
+            return rgba if alpha is None else np.r_[rgba[:3], rgba[3] * alpha]
+        if isinstance(artist, Patch):
+            if not artist.contains_point((event.x, event.y)):
+                return None
+            return np.asarray(artist.get_facecolor(), float)
+        if isinstance(artist, Collection):
+            inside, info = artist.contains(event)
+            index = info.get("ind", []) if isinstance(info, dict) else []
+            if not inside or len(index) == 0:
+                return None
+            k = int(np.asarray(index).ravel()[-1])
+            if artist.get_array() is not None:
+                values = np.ma.asarray(artist.get_array()).ravel()
+                if k < values.size and not np.ma.is_masked(values[k]):
+                    return np.asarray(artist.to_rgba(float(values[k])), float)
+                return None
+            faces = np.asarray(artist.get_facecolor(), float)
+            if faces.size == 0:
+                return None
+            return faces[min(k, len(faces) - 1)]
+    except (AttributeError, TypeError, ValueError, IndexError, RuntimeError):
+        return None
+    return None
+
+
+def backdrop_at(ax: Any, x: float, y: float, below: float, skip: Any = None) -> RGBA | None:
+    """The opaque colour beneath display point (x, y) of ``ax`` from the artists drawn before z-order ``below``.
+
+    None when nothing but the axes face is there (the rules then use the face itself).  ``skip`` is the
+    mark's own artist.
+    """
+    from matplotlib.collections import Collection
+    from matplotlib.image import AxesImage
+    from matplotlib.patches import Patch
+
+    event = _event(ax, x, y)
+    children = [(float(a.get_zorder()), i, a) for i, a in enumerate(ax.get_children())
+                if a is not skip and a is not ax.patch and a.get_visible()
+                and isinstance(a, (AxesImage, Patch, Collection)) and float(a.get_zorder()) <= below]
+    if ax.get_legend() is not None:
+        children = [c for c in children if c[2] is not ax.get_legend()]
+    stack = []
+    for _, _, artist in sorted(children, key=lambda c: (c[0], c[1])):
+        color = _color_at(artist, event)
+        if color is not None and color[3] > 0.0:
+            stack.append(color)
+    if not stack:
+        return None
+    face = np.asarray(ax.patch.get_facecolor(), float)
+    fig_face = np.asarray(ax.figure.get_facecolor(), float)
+    seen = _over(face, _over(fig_face, np.array([1.0, 1.0, 1.0, 1.0])))
+    for color in stack:
+        seen = _over(color, seen)
+    return (float(seen[0]), float(seen[1]), float(seen[2]), 1.0)
+
+
+__all__ = ["backdrop_at"]
