@@ -194,7 +194,8 @@ def test_n_thresholds() -> None:
     samples, boxes = _boxes(groups)
     found = hits(summary_hides_small_n, figure(axes(boxes=boxes), samples=samples))
     got = [(h.severity, h.confidence) for h in found]
-    assert got == [("warning", "certain"), ("warning", "likely"), ("note", "possible")]
+    # n = 12 and 15 are not small (n < 10, common practice): no note for them by default
+    assert got == [("warning", "certain"), ("warning", "likely")]
 
 
 def test_violin_and_box_n_without_sample() -> None:
@@ -339,8 +340,22 @@ def test_half_lengths_outside_tolerance_are_not_matched() -> None:
     rng = np.random.default_rng(33)
     groups = _groups(rng, n=12)
     eb = errorbars([0, 1, 2], [g.mean() for g in groups], [1.01 * stats.sem(g) for g in groups])
+    # bars that match no statistic tell the reader nothing figproof can name: no finding
+    assert hits(errorbars_ambiguous, figure(axes(errorbars=[eb]), tables=(_table(groups),))) == []
+    # one bar known among unknown ones: the known one is named, the others counted
+    eb = errorbars([0, 1, 2], [g.mean() for g in groups], [stats.sem(groups[0])] + [1.01 * stats.sem(g) for g in groups[1:]])
     (hit,) = hits(errorbars_ambiguous, figure(axes(errorbars=[eb]), tables=(_table(groups),)))
-    assert "3 match none of" in hit.message and hit.confidence == "likely"
+    assert "2 match none of" in hit.message and hit.confidence == "likely"
+
+
+def test_two_sd_bars_as_seaborn_draws_them() -> None:
+    # seaborn's errorbar=("sd", 2) draws mean ± 2 SD (seaborn documentation, "Statistical estimation and
+    # error bars"); the SD is numpy's with ddof 1, as seaborn computes it
+    rng = np.random.default_rng(35)
+    groups = _groups(rng, n=12)
+    eb = errorbars([0, 1, 2], [g.mean() for g in groups], [2 * np.std(g, ddof=1) for g in groups])
+    (hit,) = hits(errorbars_ambiguous, figure(axes(errorbars=[eb]), tables=(_table(groups),)))
+    assert "±2 SD" in hit.message
 
 
 def test_percentile_interval_around_median() -> None:

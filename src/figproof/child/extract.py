@@ -139,6 +139,7 @@ class _AxesExtractor:
         self.rec = rec
         self.renderer = renderer
         self.claimed: set[int] = set()
+        self.segments: list[tuple[float, float, float, bool, Line2D]] = []
         self.points: list[PointSet] = []
         self.lines: list[Line] = []
         self.bars: list[BarSet] = []
@@ -255,6 +256,11 @@ class _AxesExtractor:
                 self.lines.append(_line(self.ax, ln, role))
             if ln.get_marker() not in NO_MARKERS and role == "data":
                 self.points.append(_line_points(self.ax, ln, self.order.get(id(ln))))
+        self.segments = seg_bars
+
+    def segment_errorbars(self) -> None:
+        """Single-segment lines (seaborn's intervals) that surround a summary mark become error bars."""
+        seg_bars = self.segments
         if seg_bars:
             for vertical in (True, False):
                 group = [s for s in seg_bars if s[3] == vertical]
@@ -263,35 +269,50 @@ class _AxesExtractor:
                 pos = np.array([g[0] for g in group])
                 lo = np.array([g[1] for g in group])
                 hi = np.array([g[2] for g in group])
+                centers, marked = self._estimates(pos, lo, hi, vertical)
+                # a segment is an error bar only around a summary mark (a bar top, a point) inside it:
+                # drop lines to an annotated point and step lines between groups are other lines
+                for k in np.flatnonzero(~marked):
+                    self.lines.append(_line(self.ax, group[k][4], "reference"))
+                if not marked.any():
+                    continue
                 self.errorbars.append(ErrorBars(
-                    orientation="vertical" if vertical else "horizontal", positions=pos,
-                    centers=self._estimates(pos, lo, hi, vertical), lower=lo, upper=hi,
-                    color=_rgba(group[0][4].get_color()), origin="lines", source=_src(group[0][4])))
+                    orientation="vertical" if vertical else "horizontal", positions=pos[marked],
+                    centers=centers[marked], lower=lo[marked], upper=hi[marked],
+                    color=_rgba(group[int(np.flatnonzero(marked)[0])][4].get_color()), origin="lines",
+                    source=_src(group[int(np.flatnonzero(marked)[0])][4])))
 
-    def _estimates(self, pos: np.ndarray, lo: np.ndarray, hi: np.ndarray, vertical: bool) -> np.ndarray:
-        """The value each error bar belongs to: the top of a bar, or a marker, at its position.
+    def _estimates(self, pos: np.ndarray, lo: np.ndarray, hi: np.ndarray,
+                   vertical: bool) -> tuple[np.ndarray, np.ndarray]:
+        """The value each error bar belongs to (a bar top or a marker at its position, strictly inside it),
+        and whether one was found.
 
         An interval need not be symmetric (a bootstrap CI is not), so its midpoint is only the fallback.
         """
         centers = (lo + hi) / 2
+        marked = np.zeros(pos.size, bool)
         orientation = "vertical" if vertical else "horizontal"
         for i, p in enumerate(pos):
+            margin = 1e-9 + 1e-6 * abs(hi[i] - lo[i])
             for bars in self.bars:
                 if bars.orientation != orientation:
                     continue
                 hit = np.flatnonzero(np.isclose(bars.positions, p, atol=1e-9 + 0.01 * float(np.nanmax(bars.widths))))
                 if hit.size:
-                    centers[i] = bars.bottoms[hit[0]] + bars.heights[hit[0]]
+                    top = bars.bottoms[hit[0]] + bars.heights[hit[0]]
+                    centers[i] = top
+                    marked[i] = lo[i] + margin < top < hi[i] - margin
                     break
             else:
                 for pts in self.points:
                     along, value = (pts.x, pts.y) if vertical else (pts.y, pts.x)
-                    hit = np.flatnonzero(np.isclose(along, p, atol=1e-9))
-                    inside = [j for j in hit if lo[i] - 1e-12 <= value[j] <= hi[i] + 1e-12]
+                    hit = np.flatnonzero(np.isclose(along, p, atol=1e-9 + 1e-6 * abs(p)))
+                    inside = [j for j in hit if lo[i] + margin < value[j] < hi[i] - margin]
                     if inside:
                         centers[i] = value[inside[0]]
+                        marked[i] = True
                         break
-        return centers
+        return centers, marked
 
     def collections(self) -> None:
         for coll in self.ax.collections:
@@ -427,6 +448,7 @@ class _AxesExtractor:
         self.containers()
         self.free_lines()
         self.collections()
+        self.segment_errorbars()
         self.images()
         self.free_patches()
         self.text_marks()

@@ -334,7 +334,8 @@ def _positions(ax: Axes) -> list[float]:
     ),
     knobs=(
         Knob(name="small_n", default=10, help="Groups smaller than this are warned about.", minimum=1),
-        Knob(name="note_n", default=15, help="Groups from small_n up to below this get a note.", minimum=1),
+        Knob(name="note_n", default=10, help="Groups from small_n up to below this get a note (off by default).",
+             minimum=1),
         Knob(name="shown_share", default=0.8,
              help="Share of a group's observations drawn as points that counts as showing the data.",
              minimum=0, maximum=1),
@@ -401,15 +402,15 @@ def _small_n_hit(ax: Axes, kind: str, severity: Severity, items: list[tuple[_Sum
     else:
         axis = "x" if first.vertical else "y"
         labels = [group_label(ax, s.vertical, s.position) for s, _, _ in items]
-        places = ", ".join(fmt(s.position) for s, _, _ in items)
+        places = f"at {axis} = " + ", ".join(fmt(s.position) for s, _, _ in items)
         if all(labels):
-            places += " (" + ", ".join(f"'{lab}'" for lab in labels) + ")"
+            places = ", ".join(f"'{lab}'" for lab in labels)  # readers know the groups by their tick labels
         sizes = sorted({s.n for s, _, _ in items if s.n is not None})
         n_text = f"n = {sizes[0]}" if len(sizes) == 1 else f"n = {sizes[0]} to {sizes[-1]}"
         total = sum(s.n or 0 for s, _, _ in items)
         drawn = sum(d for _, d, _ in items)
         plural = "es" if kind == "box" else "s"
-        message = (f"{len(items)} {kind}{plural} (at {axis} = {places}) summarise {n_text} values each and draw "
+        message = (f"{len(items)} {kind}{plural} ({places}) summarise {n_text} values each and draw "
                    f"{pct(drawn, total)} of their values as points")
     return Hit(message=message, source=first.source, axes=ax.index, severity=severity, confidence=confidence,
                key=f"{kind}:{severity}:" + ",".join(fmt(s.position) for s, _, _ in items))
@@ -540,6 +541,9 @@ def _identify(values: np.ndarray, center: float, below: float, above: float, rto
         f"{_SEM} (ddof 0)": sd0 / math.sqrt(n),
         f"{_CI} (t)": t * sem,
         f"{_CI} (1.96 SEM)": 1.96 * sem,
+        # seaborn's errorbar=("sd", 2) and ("se", 2): a scale on the SD or SEM
+        f"2 {_SD} (ddof 1)": 2.0 * sd1,
+        f"2 {_SEM}": 2.0 * sem,
     }
     found = [name for name, h in symmetric.items() if _close(below, h, rtol) and _close(above, h, rtol)]
     for w in _PERCENTILE_WIDTHS:
@@ -574,6 +578,8 @@ def _describe(kind: str) -> str:
         return f"either {kind}"
     if kind.startswith((_SD, _SEM)):
         return f"±1 {kind}"
+    if kind.startswith((f"2 {_SD}", f"2 {_SEM}")):
+        return f"±{kind}"
     if _BOOT in kind:
         return f"a {kind} of the mean (to within resampling error)"
     if kind.startswith(_CI):
@@ -713,8 +719,8 @@ def _errorbar_hits(ax: Axes, k: int, eb: ErrorBars, recorded: list[Group], half:
             if matched(values, near) < share * n:
                 sem_hidden.append(n)
     total = len(kinds) + unmatched + ambiguous_group
-    if total == 0:
-        return
+    if not kinds:
+        return  # nothing known about any bar: a note saying so would tell the reader nothing
     parts: list[str] = []
     for kind in dict.fromkeys(kinds):
         ns = [s for s, kk in zip(sizes, kinds, strict=True) if kk == kind]
