@@ -476,6 +476,27 @@ def _marks_in_gap(ax: Axes, which: str, axis: Axis, fmin: float, fmax: float) ->
     return found
 
 
+def _values(ax: Axes, which: str) -> np.ndarray:
+    """The data values drawn along ``which`` by points and data lines (for telling a rating scale)."""
+    parts = [np.asarray(ps.x if which == "x" else ps.y, float).ravel() for ps in ax.points]
+    parts += [np.asarray(ln.x if which == "x" else ln.y, float).ravel() for ln in ax.lines if ln.role == "data"]
+    parts += [np.asarray([b.median, b.q1, b.q3], float) for b in ax.boxes]
+    values = np.concatenate(parts) if parts else np.zeros(0)
+    return values[np.isfinite(values)]
+
+
+def _bounded_scale(lo: float, hi: float, values: np.ndarray) -> bool:
+    """Limits that show a whole bounded scale: a proportion (0 to 1), a percentage (0 to 100), or a rating
+    scale of a few whole-number steps (1 to 5, 0 to 10) holding whole-number data."""
+    lo, hi = min(lo, hi), max(lo, hi)
+    if -0.05 <= lo and hi <= 1.05 and hi - lo >= 0.9:
+        return True
+    if -5.0 <= lo and hi <= 105.0 and hi - lo >= 90.0:
+        return True
+    whole = values.size > 0 and bool(np.all(np.isclose(values, np.round(values))))
+    return whole and hi - lo <= 11.0 and lo >= -1.0
+
+
 @rule(
     "axis-empty-span",
     severity="warning",
@@ -541,13 +562,15 @@ def axis_empty_span(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
     highest drawn value (gaps between clusters are the data's own).  Axes
     with bars are skipped (their baseline is meaningful), and so are axes
     with images or meshes, fewer than two distinct values, scales other than
-    linear/log/logit, and polar, 3-D and colour-bar axes.  Confidence rises
+    linear/log/logit, and polar, 3-D and colour-bar axes; so are axes turned off,
+    limits shared with sibling panels, and limits the script set to show a
+    whole bounded scale (0-1, 0-100, a rating scale).  Confidence rises
     to likely when zero was forced into the limits; a reference line, shaded
     span or annotation inside the gap lowers the finding to a note.
     """
     max_share = float(knobs.get("max_empty_share", EMPTY_MAX_SHARE))
     for ax in figure.axes:
-        if not _cartesian(ax) or any(b.heights.size for b in ax.bars):
+        if not _cartesian(ax) or not ax.axis_on or any(b.heights.size for b in ax.bars):
             continue
         if any(c.kind in ("image", "mesh", "contour") for c in ax.colormaps):
             continue
@@ -560,6 +583,10 @@ def axis_empty_span(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
         lims = _limits(axis)
         if lims is None or axis.categorical or axis.scale not in _FRACTION_SCALES:
             continue
+        if axis.shared:
+            continue  # the limits are shared with sibling panels, so they can be compared: the space is theirs
+        if not axis.autoscaled and _bounded_scale(lims[0], lims[1], _values(ax, which)):
+            continue  # the script showed the whole of a bounded scale on purpose
         f = _value_fractions(ax, which, axis)
         if f.size < 2 or np.ptp(f) == 0:
             continue

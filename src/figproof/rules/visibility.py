@@ -14,7 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from figproof.model.findings import Hit
+from figproof.model.findings import Detail, Hit
 from figproof.model.records import Axes, FigureModel, PointSet
 from figproof.rules.base import Knob, Knobs, counted, rule
 from figproof.science.colour import blend_over, delta_e
@@ -27,6 +27,7 @@ COVERED_ERROR = 0.05
 OPAQUE_ALPHA = 0.9
 FAINT_DELTA_E = 5.0
 GRID_ABOVE = 2e5
+DENSITY_ALPHA = 0.3  # common practice: at 0.3 or less, ten stacked markers still differ from one
 
 _DEFAULT_DPI = 100.0  # matplotlib's rcParams figure.dpi default
 _DEFAULT_SIZE = 36.0  # matplotlib's rcParams lines.markersize (6 pt) squared
@@ -261,6 +262,8 @@ def _faint(ps: PointSet, keep: np.ndarray, background: np.ndarray, limit: float)
              help="CAM02-UCS colour difference from the background below which a marker is nearly invisible."),
         Knob(name="grid_above", default=GRID_ABOVE, minimum=2,
              help="Point count above which overlap is estimated on a grid instead of by nearest neighbours."),
+        Knob(name="density_alpha", default=DENSITY_ALPHA, minimum=0, maximum=1,
+             help="Marker opacity at or below which overlapping markers show density and are not reported."),
     ),
     bad="""
         import matplotlib.pyplot as plt
@@ -305,69 +308,106 @@ def points_hidden(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
     k = {name: float(knobs.get(name, default)) for name, default in (
         ("hidden_warning", HIDDEN_WARNING), ("hidden_error", HIDDEN_ERROR), ("duplicate_error", DUPLICATE_ERROR),
         ("duplicate_px", DUPLICATE_PX), ("covered_error", COVERED_ERROR), ("opaque_alpha", OPAQUE_ALPHA),
-        ("faint_delta_e", FAINT_DELTA_E), ("grid_above", GRID_ABOVE))}
+        ("faint_delta_e", FAINT_DELTA_E), ("grid_above", GRID_ABOVE), ("density_alpha", DENSITY_ALPHA))}
     dpi = float(figure.dpi) if math.isfinite(figure.dpi) and figure.dpi > 0 else _DEFAULT_DPI
     for ax in figure.axes:
         if ax.projection != "rectilinear" or ax.is_colorbar:
             continue
-        x0, y0, x1, y1 = ax.display_box
-        x0, x1 = sorted((x0, x1))
-        y0, y1 = sorted((y0, y1))
-        background = _background(ax, figure)
-        for i, ps in enumerate(ax.points):
-            px = np.asarray(ps.px, dtype=float).ravel()
-            py = np.asarray(ps.py, dtype=float).ravel()
-            n = min(px.size, py.size)
-            px, py = px[:n], py[:n]
-            slack = 0.5  # half a pixel of rounding at the axes edge
-            keep = (np.isfinite(px) & np.isfinite(py) & (px >= x0 - slack) & (px <= x1 + slack)
-                    & (py >= y0 - slack) & (py <= y1 + slack))
-            m = int(keep.sum())
-            if m == 0:
-                continue
-            sizes = _per_point(ps.sizes, n, 1)
-            radius = marker_radius_px(sizes[keep] if sizes is not None else np.full(m, _DEFAULT_SIZE), dpi)
-            kx, ky = px[keep], py[keep]
+        found = [hit for i, ps in enumerate(ax.points) for hit in point_set_problems(ax, i, ps, figure, k, dpi)]
+        if found:
+            yield _one_per_axes(ax, found)
 
-            ov = overlap(kx, ky, radius, duplicate_px=k["duplicate_px"], grid_above=k["grid_above"])
-            hidden, dups = int(ov.hidden.sum()), int(ov.duplicate.sum())
-            severity: str | None = None
-            if hidden >= k["hidden_error"] * m or (dups and dups >= k["duplicate_error"] * m):
-                severity = "error"
-            elif hidden and hidden >= k["hidden_warning"] * m:
-                severity = "warning"
-            if severity is not None:
-                how = "nearest-neighbour" if ov.exact else "grid-occupancy estimate"
-                dup_text = f", {dups} of them duplicates within {k['duplicate_px']:g} px" if dups else ""
-                yield Hit(message=(f"{counted(hidden, m, 'marker', 'markers')} overlap a neighbour closer than the "
-                                   f"marker radius ({float(np.median(radius)):.1f} px){dup_text} ({how})"),
-                          source=ps.source, axes=ax.index, severity="error" if severity == "error" else None,
-                          confidence="certain" if ov.exact else "likely", key=f"points:{i}:overlap")
 
-            under_shapes = _covered(kx, ky, radius, _opaque_boxes(ax, ps, k["opaque_alpha"]))
-            legend = (_covered(kx, ky, radius, [ax.legend_box]) if ax.legend_box is not None
-                      else np.zeros(m, dtype=bool))
-            covered = under_shapes | legend
-            c = int(covered.sum())
-            if c:
-                reasons = []
-                if under_shapes.any():
-                    reasons.append(f"{int(under_shapes.sum())} under opaque bars or shapes drawn later")
-                if legend.any():
-                    reasons.append(f"{int(legend.sum())} under the legend")
-                yield Hit(message=f"{counted(c, m, 'marker', 'markers')} are covered ({' and '.join(reasons)})",
-                          source=ps.source, axes=ax.index, severity="error" if c >= k["covered_error"] * m else None,
-                          confidence="certain", key=f"points:{i}:covered")
+_RANK = {"error": 0, None: 1, "warning": 1, "note": 2}
 
-            faint, lowest_alpha = _faint(ps, keep, background, k["faint_delta_e"])
-            # overlapping faint markers build up density; an isolated faint marker simply vanishes
-            faint &= ~ov.hidden
-            f = int(faint.sum())
-            if f:
-                yield Hit(message=(f"{counted(f, m, 'marker', 'markers')} are nearly invisible: blended over the "
-                                   f"background (lowest opacity {lowest_alpha:.2g}) they differ from it by less than "
-                                   f"ΔE' {k['faint_delta_e']:g}"),
-                          source=ps.source, axes=ax.index, confidence="certain", key=f"points:{i}:faint")
+
+def _one_per_axes(ax: Axes, found: list[Hit]) -> Hit:
+    """All hidden-marker problems of one axes as one finding: the worst first, the rest as details."""
+    found = sorted(found, key=lambda h: _RANK[h.severity])
+    head = found[0]
+    rest = len(found) - 1
+    more = f"; and {rest} more problem{'s' * (rest != 1)} with markers of this axes" if rest else ""
+    return Hit(message=head.message + more, source=head.source, axes=ax.index, severity=head.severity,
+               confidence=head.confidence, key=":".join(h.key for h in found),
+               details=tuple(Detail(message=h.message, source=h.source, axes=ax.index) for h in found))
+
+
+def _on_a_line(ax: Axes, ps: PointSet) -> bool:
+    """Markers of a line that is also drawn: they sit along a curve the line already shows."""
+    return ps.kind == "line" and any(
+        ln.role == "data" and ln.source == ps.source and ln.x.size == ps.x.size and ln.linestyle not in
+        ("", " ", "None", "none") for ln in ax.lines)
+
+
+def _see_through(ps: PointSet) -> float:
+    """The markers' opacity (face alpha times the set's alpha): low opacity is the remedy for overplotting."""
+    faces = np.asarray(ps.facecolors, float)
+    alpha = float(np.nanmax(faces[:, 3])) if faces.ndim == 2 and faces.shape[0] and faces.shape[1] == 4 else 1.0
+    return alpha
+
+
+def point_set_problems(ax: Axes, i: int, ps: PointSet, figure: FigureModel, k: dict[str, float],
+                    dpi: float) -> Iterator[Hit]:
+    x0, y0, x1, y1 = ax.display_box
+    x0, x1 = sorted((x0, x1))
+    y0, y1 = sorted((y0, y1))
+    background = _background(ax, figure)
+    px = np.asarray(ps.px, dtype=float).ravel()
+    py = np.asarray(ps.py, dtype=float).ravel()
+    n = min(px.size, py.size)
+    px, py = px[:n], py[:n]
+    slack = 0.5  # half a pixel of rounding at the axes edge
+    keep = (np.isfinite(px) & np.isfinite(py) & (px >= x0 - slack) & (px <= x1 + slack)
+            & (py >= y0 - slack) & (py <= y1 + slack))
+    m = int(keep.sum())
+    if m == 0:
+        return
+    sizes = _per_point(ps.sizes, n, 1)
+    radius = marker_radius_px(sizes[keep] if sizes is not None else np.full(m, _DEFAULT_SIZE), dpi)
+    kx, ky = px[keep], py[keep]
+
+    ov = overlap(kx, ky, radius, duplicate_px=k["duplicate_px"], grid_above=k["grid_above"])
+    hidden, dups = int(ov.hidden.sum()), int(ov.duplicate.sum())
+    severity: str | None = None
+    if hidden >= k["hidden_error"] * m or (dups and dups >= k["duplicate_error"] * m):
+        severity = "error"
+    elif hidden and hidden >= k["hidden_warning"] * m:
+        severity = "warning"
+    # markers drawn see-through already show density (the remedy for overplotting), and markers along a
+    # drawn line show its course: their overlap is not reported
+    remedied = _see_through(ps) <= k["density_alpha"] or _on_a_line(ax, ps)
+    if severity is not None and not remedied:
+        dup_text = f", {dups} of them drawn on exactly the same spot" if dups else ""
+        yield Hit(message=(f"{counted(hidden, m, 'marker', 'markers')} sit on top of a neighbour (closer than "
+                           f"the marker radius, {float(np.median(radius)):.1f} px){dup_text}, so readers cannot "
+                           f"count them"),
+                  source=ps.source, axes=ax.index, severity="error" if severity == "error" else None,
+                  confidence="certain" if ov.exact else "likely", key=f"points:{i}:overlap")
+
+    under_shapes = _covered(kx, ky, radius, _opaque_boxes(ax, ps, k["opaque_alpha"]))
+    legend = (_covered(kx, ky, radius, [ax.legend_box]) if ax.legend_box is not None
+              else np.zeros(m, dtype=bool))
+    covered = under_shapes | legend
+    c = int(covered.sum())
+    if c:
+        reasons = []
+        if under_shapes.any():
+            reasons.append(f"{int(under_shapes.sum())} under opaque bars or shapes drawn later")
+        if legend.any():
+            reasons.append(f"{int(legend.sum())} under the legend")
+        yield Hit(message=f"{counted(c, m, 'marker', 'markers')} are covered ({' and '.join(reasons)})",
+                  source=ps.source, axes=ax.index, severity="error" if c >= k["covered_error"] * m else None,
+                  confidence="certain", key=f"points:{i}:covered")
+
+    faint, lowest_alpha = _faint(ps, keep, background, k["faint_delta_e"])
+    # overlapping faint markers build up density; an isolated faint marker simply vanishes
+    faint &= ~ov.hidden
+    f = int(faint.sum())
+    if f:
+        yield Hit(message=(f"{counted(f, m, 'marker', 'markers')} are nearly invisible: drawn at opacity "
+                           f"{lowest_alpha:.2g} they barely differ from the background (colour difference "
+                           f"ΔE' below {k['faint_delta_e']:g})"),
+                  source=ps.source, axes=ax.index, confidence="certain", key=f"points:{i}:faint")
 
 
 RULES = (points_hidden,)
