@@ -25,7 +25,8 @@ def _over(top: np.ndarray, under: np.ndarray) -> np.ndarray:
 def _event(ax: Any, x: float, y: float) -> Any:
     from matplotlib.backend_bases import MouseEvent
 
-    return MouseEvent("motion_notify_event", ax.figure.canvas, x, y)
+    # matplotlib's events carry pixel positions as numbers; sub-pixel positions are fine for contains()
+    return MouseEvent("motion_notify_event", ax.figure.canvas, x, y)  # type: ignore[arg-type]
 
 
 def _color_at(artist: Any, event: Any) -> np.ndarray | None:
@@ -41,7 +42,7 @@ def _color_at(artist: Any, event: Any) -> np.ndarray | None:
             value = artist.get_cursor_data(event)
             if value is None:
                 return None
-            rgba = np.asarray(artist.to_rgba(value) if np.ndim(value) == 0 else value, float).ravel()
+            rgba = np.asarray(artist.to_rgba(np.asarray(value)) if np.ndim(value) == 0 else value, float).ravel()
             if rgba.size == 3:
                 rgba = np.r_[rgba, 1.0]
             if rgba.max() > 1.0:
@@ -59,9 +60,9 @@ def _color_at(artist: Any, event: Any) -> np.ndarray | None:
                 return None
             k = int(np.asarray(index).ravel()[-1])
             if artist.get_array() is not None:
-                values = np.ma.asarray(artist.get_array()).ravel()
+                values: np.ma.MaskedArray = np.ma.asarray(artist.get_array()).ravel()
                 if k < values.size and not np.ma.is_masked(values[k]):
-                    return np.asarray(artist.to_rgba(float(values[k])), float)
+                    return np.asarray(artist.to_rgba(np.asarray(float(values[k]))), float)
                 return None
             faces = np.asarray(artist.get_facecolor(), float)
             if faces.size == 0:

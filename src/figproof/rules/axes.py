@@ -489,9 +489,9 @@ def _bounded_scale(lo: float, hi: float, values: np.ndarray) -> bool:
     """Limits that show a whole bounded scale: a proportion (0 to 1), a percentage (0 to 100), or a rating
     scale of a few whole-number steps (1 to 5, 0 to 10) holding whole-number data."""
     lo, hi = min(lo, hi), max(lo, hi)
-    if -0.05 <= lo and hi <= 1.05 and hi - lo >= 0.9:
+    if lo >= -0.05 and hi <= 1.05 and hi - lo >= 0.9:
         return True
-    if -5.0 <= lo and hi <= 105.0 and hi - lo >= 90.0:
+    if lo >= -5.0 and hi <= 105.0 and hi - lo >= 90.0:
         return True
     whole = values.size > 0 and bool(np.all(np.isclose(values, np.round(values))))
     return whole and hi - lo <= 11.0 and lo >= -1.0

@@ -14,21 +14,16 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from figproof.model.findings import Detail, Hit
-from figproof.model.records import Axes, ColorMapping, FigureModel, Source, Text
+from figproof.model.findings import Detail, Hit, Severity
+from figproof.model.records import ColorMapping, FigureModel, Source
 from figproof.rules._colormaps import MapProblem, judge_cached, judge_colormap
 from figproof.rules._series import (
     AxesPairs,
     Series,
-    axes_background,
     axes_pairs,
     axes_series,
-    figure_background,
-    opaque,
     palette_colors,
-    public_label,
     series_name,
-    visible_colors,
 )
 from figproof.rules.base import Knob, Knobs, rule
 from figproof.rules.contrast import is_large_text, low_contrast
@@ -205,11 +200,12 @@ _SERIES_KNOBS = (
         guessing which curve is which. figproof takes the colours a reader must tell apart in each axes:
         series and hue levels named by a legend, or told apart by colour alone (not bars that stand
         under their own tick labels, slices labelled directly, or colours that step along a lightness
-        ramp, which encode an ordered value), blends them over the axes background, simulates protan, deutan and tritan vision with the Machado et al. (2009) model and
-        measures every pair's perceptual distance ΔE' in CAM02-UCS. Pairs closer than the limit for
-        normal, protan or deutan vision are errors; for tritan vision, or when a pair loses its hue
-        difference and keeps too little lightness difference, they are warnings. All clashing pairs of
-        one axes are one finding, worst first.
+        ramp, which encode an ordered value), blends them over the axes background, simulates protan,
+        deutan and tritan vision with the Machado et al. (2009) model and measures every pair's
+        perceptual distance ΔE' in CAM02-UCS. Pairs closer than the limit for normal, protan or deutan
+        vision are errors; for tritan vision, or when a pair loses its hue difference and keeps too
+        little lightness difference, they are warnings. All clashing pairs of one axes are one finding,
+        worst first.
     """,
     fix="""
         Choose a palette designed for colour-blind readers, such as Okabe & Ito's
@@ -275,7 +271,7 @@ def colours_confusable_cvd(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
 class _Clash:
     """One clashing pair of an axes: how bad, in plain words and numbers."""
 
-    severity: str
+    severity: Severity
     distance: float
     message: str
     source: Source | None
@@ -308,8 +304,8 @@ def _cvd_clashes(g: AxesPairs, ucs: np.ndarray, knobs: Knobs) -> Iterator[_Clash
             also = [f"{v} {d[v]:.1f}" for v in strict if v != worst]
             extra = f"; {', '.join(also)} for the other form" if also else ""
             yield _Clash("error", d[worst], f"{names} look the same to readers with {_READERS[worst]} "
-                         f"(simulated {worst} vision: colour difference ΔE' {d[worst]:.1f}{extra}, below {limit:g})", source,
-                         f"{key}/{worst}")
+                         f"(simulated {worst} vision: colour difference ΔE' {d[worst]:.1f}{extra}, "
+                         f"below {limit:g})", source, f"{key}/{worst}")
             continue
         if d["tritan"] < limit:
             yield _Clash("warning", d["tritan"], f"{names} look alike to readers with {_READERS['tritan']} "
@@ -328,7 +324,8 @@ def _cvd_clashes(g: AxesPairs, ucs: np.ndarray, knobs: Knobs) -> Iterator[_Clash
             k = cs.VISIONS.index(v)
             left = abs(float(ucs[k, i, 0] - ucs[k, j, 0]))
             yield _Clash("warning", left, f"{names} differ only a little in lightness for readers with {_READERS[v]}: "
-                         f"their hue difference is lost under simulated {v} vision (a'b' distance {normal_ab:.1f} drops to {value:.1f}) and "
+                         f"their hue difference is lost under simulated {v} vision (a'b' distance "
+                         f"{normal_ab:.1f} drops to {value:.1f}) and "
                          f"the lightness difference left, J' {left:.1f}, is below {knobs['lightness_left']:g}",
                          source, f"{key}/hue-{v}")
 
@@ -420,6 +417,7 @@ def colours_confusable_gray(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
             yield dataclasses.replace(hit, severity=None)
 
 
-__all__ = ["RULES", "is_large_text", "low_contrast", "MapProblem", "Series", "axes_series", "judge_colormap", "palette_colors"]
+__all__ = ["RULES", "MapProblem", "Series", "axes_series", "is_large_text", "judge_colormap", "low_contrast",
+           "palette_colors"]
 
 RULES = (colormap_not_uniform, colours_confusable_cvd, colours_confusable_gray, low_contrast)

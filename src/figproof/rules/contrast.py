@@ -246,8 +246,9 @@ def _mark_hits(ax: Axes, figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
             continue
         worst = int(np.argmin(r))
         rgba = cs.as_rgba(m.faces)
-        shown = cs.to_hex(cs.blend_over(np.nan_to_num(rgba[worst]), np.r_[m.under[min(worst, m.under.shape[0] - 1)]])[0])
-        under_hex = cs.to_hex(m.under[min(worst, m.under.shape[0] - 1)])
+        beneath = m.under[min(worst, m.under.shape[0] - 1)]
+        shown = cs.to_hex(cs.blend_over(np.nan_to_num(rgba[worst]), beneath)[0])
+        under_hex = cs.to_hex(beneath)
         name = f"{m.what} of '{m.label}'" if m.label else m.what
         kind = "large filled marks" if m.large and m.limit < knobs["mark_ratio"] else "graphical objects (WCAG 2.1)"
         bad = int((r < m.limit).sum())
