@@ -2,11 +2,12 @@
 
 from __future__ import annotations
 
+import re
 from collections.abc import Iterator
 
 from figproof.model.context import RunContext
 from figproof.model.findings import Hit
-from figproof.model.records import ScriptRun
+from figproof.model.records import FileEvent, ScriptRun
 from figproof.rules.base import Knobs, rule
 
 _KIND_TEXT = {
@@ -17,6 +18,32 @@ _KIND_TEXT = {
     "exit": "exited before figproof could read what it drew",
     "no-report": "ended without reporting what it drew",
 }
+
+
+def _missing_input(run: ScriptRun) -> FileEvent | None:
+    """The missing file the script's error is about: read at the failing line, or named in the message."""
+    err = run.error
+    if err is None or err.kind != "exception":
+        return None
+    missing = [ev for ev in run.events if ev.action == "missing" or (ev.action == "read" and not ev.exists)]
+    for ev in missing:
+        if err.source is not None and ev.source == err.source:
+            return ev
+    for ev in missing:
+        if ev.path and (ev.path in err.message or ev.path.rsplit("/", 1)[-1] in err.message):
+            return ev
+    return None
+
+
+_NO_MODULE = re.compile(r"No module named '([^']+)'")
+
+
+def _missing_package(run: ScriptRun) -> str | None:
+    err = run.error
+    if err is None or err.kind != "exception" or err.type not in ("ModuleNotFoundError", "ImportError"):
+        return None
+    found = _NO_MODULE.search(err.message)
+    return found.group(1).split(".")[0] if found else None
 
 
 @rule(
@@ -35,6 +62,8 @@ _KIND_TEXT = {
         legitimately needs more time or memory, raise `timeout` or `memory-limit` in `[tool.figproof]`.
     """,
     sources=("Common practice: a figure's code must run from a clean checkout to be reproducible.",),
+    # a failure caused by a missing input is a note pointing at input-missing; a missing package is one
+    # finding naming every script that needs it
     bad="""
         import matplotlib.pyplot as plt
         import numpy as np
@@ -57,13 +86,28 @@ def script_fails(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator[
     err = run.error
     if run.status == "ok" or run.status == "skipped" or err is None:
         return
+    where = f" at {err.source}" if err.source is not None else ""
+    # one finding per cause: a missing input file is input-missing's (or input-outside-repo's) error, and
+    # the failure it causes is a note pointing at it; a missing package is one finding for all its scripts
+    ev = _missing_input(run)
+    if ev is not None:
+        rule_id = "input-missing" if ev.inside_repo else "input-outside-repo"
+        at = f" at line {err.source.line}" if err.source is not None and err.source.path == run.path \
+            and err.source.line is not None and err.source.cell is None else where
+        yield Hit(message=f"{run.path} stops{at} because {ev.path} is missing (reported by {rule_id})",
+                  source=err.source, severity="note", key=f"{err.kind}:missing-input")
+        return
+    package = _missing_package(run)
+    if package is not None:
+        yield Hit(message=f"the package '{package}' is not installed where figproof runs, so the script stops "
+                          f"at its import", source=err.source, key=f"package:{package}", group=f"package:{package}")
+        return
     if err.kind == "exception":
         what = f"raised {err.type}: {err.message}" if err.message else f"raised {err.type}"
     else:
         what = _KIND_TEXT.get(err.kind, err.kind)
         if err.message:
             what = f"{what} ({err.message})"
-    where = f" at {err.source}" if err.source is not None else ""
     yield Hit(message=f"{run.path} {what}{where}", source=err.source, key=err.kind)
 
 
