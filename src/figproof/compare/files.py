@@ -31,6 +31,7 @@ from typing import Any, Literal, cast
 import numpy as np
 from PIL import Image, ImageDraw
 
+from figproof.compare.render_diff import rendering_only
 from figproof.model.comparison import (
     RASTER_SUFFIXES,
     VECTOR_SUFFIXES,
@@ -191,7 +192,8 @@ def _fmt_size(size: tuple[int, int] | None) -> str:
 
 
 def _compare_raster(
-    committed: Path | io.BytesIO, regenerated: Path | io.BytesIO, *, tolerance: float, max_pixels: int
+    committed: Path | io.BytesIO, regenerated: Path | io.BytesIO, *, tolerance: float, max_pixels: int,
+    shifts: bool = False,
 ) -> dict[str, Any]:
     out: dict[str, Any] = {}
     sizes: list[tuple[int, int] | None] = []
@@ -232,6 +234,12 @@ def _compare_raster(
         return {**out, "status": "same", "message": "pixels identical"}
     if tolerance > 0 and rms <= tolerance:
         return {**out, "status": "same", "message": f"RMS {rms:.3g} within tolerance {tolerance:g}"}
+    if shifts:
+        a, b = _same_channels(a, b)
+        if rendering_only(a, b):
+            return {**out, "status": "rendering",
+                    "message": f"{differing} of {out['total_pixels']} pixels differ only by small shifts of edges "
+                               f"and text"}
     return {**out, "status": "drift", "message": f"{differing} of {out['total_pixels']} pixels differ, RMS {rms:.3g}"}
 
 
@@ -414,6 +422,7 @@ def compare_output(
     path: str | None = None,
     max_pixels: int = MAX_PIXELS,
     diff_to: Path | None = None,
+    shifts: bool = False,
 ) -> OutputComparison:
     """Compare a committed figure file with the file its script regenerated.
 
@@ -429,6 +438,9 @@ def compare_output(
         Rasters larger than this are compared by bytes only (``"too-large"`` when they differ).
     diff_to
         When given and the rasters drift, write a diff image there and record its path.
+    shifts
+        Tell rendering-only differences (anti-aliasing, hinting, sub-pixel placement, see
+        :mod:`figproof.compare.render_diff`) apart: status ``"rendering"`` instead of ``"drift"``.
 
     Returns
     -------
@@ -451,7 +463,7 @@ def compare_output(
     for label, file in (("committed", committed), ("regenerated", regenerated)):
         if file.stat().st_size == 0:
             return OutputComparison(**base, status=_side("unreadable", label), message=f"the {label} file is empty")
-    fields = _compare_raster(committed, regenerated, tolerance=tolerance, max_pixels=max_pixels)
+    fields = _compare_raster(committed, regenerated, tolerance=tolerance, max_pixels=max_pixels, shifts=shifts)
     fields["committed_version"] = recorded_version(committed)
     fields["regenerated_version"] = recorded_version(regenerated)
     result = OutputComparison(**base, **fields)
@@ -471,6 +483,7 @@ def compare_image_bytes(
     cell: int | None = None,
     output: int | None = None,
     max_pixels: int = MAX_PIXELS,
+    shifts: bool = False,
 ) -> OutputComparison:
     """Compare two encoded images held in memory (a notebook's stored PNG and a fresh rendering)."""
     base: dict[str, Any] = {"path": path, "kind": "raster", "tolerance": float(tolerance), "cell": cell,
@@ -479,7 +492,7 @@ def compare_image_bytes(
         if not data:
             return OutputComparison(**base, status=_side("unreadable", label), message=f"the {label} image is empty")
     fields = _compare_raster(io.BytesIO(committed), io.BytesIO(regenerated), tolerance=tolerance,
-                             max_pixels=max_pixels)
+                             max_pixels=max_pixels, shifts=shifts)
     return OutputComparison(**base, **fields)
 
 

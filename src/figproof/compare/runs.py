@@ -42,7 +42,7 @@ def committed_vs_regenerated(runs: Sequence[ScriptRun], root: Path, artifacts: P
             if path in out or not committed.is_file():
                 continue
             diffs.mkdir(parents=True, exist_ok=True)
-            out[path] = compare_output(committed, regenerated / path, tolerance=tolerance, path=path,
+            out[path] = compare_output(committed, regenerated / path, tolerance=tolerance, path=path, shifts=True,
                                        diff_to=diffs / _diff_name(path))
     return out
 
@@ -69,7 +69,7 @@ def notebook_outputs(runs: Sequence[ScriptRun], root: Path, artifacts: Path,
                 except OSError:
                     continue
                 found.append(compare_image_bytes(png, fresh, tolerance=tolerance, path=run.path, cell=cell,
-                                                 output=k + 1))
+                                                 output=k + 1, shifts=True))
         if found:
             out[run.path] = tuple(found)
     return out

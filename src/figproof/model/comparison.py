@@ -13,7 +13,8 @@ from figproof.model.records import Serialisable, model
 
 RASTER_SUFFIXES = frozenset({".png", ".jpg", ".jpeg", ".tif", ".tiff", ".gif", ".bmp", ".webp"})
 VECTOR_SUFFIXES = frozenset({".pdf", ".svg", ".eps", ".ps"})
-ComparisonStatus = Literal["same", "drift", "size-mismatch", "missing-committed", "missing-regenerated",
+# "rendering": the pixels differ only by small shifts of edges and text (anti-aliasing, hinting)
+ComparisonStatus = Literal["same", "drift", "rendering", "size-mismatch", "missing-committed", "missing-regenerated",
                            "unreadable-committed", "unreadable-regenerated", "too-large"]
 FileKind = Literal["raster", "vector", "other"]
 STATUSES: tuple[ComparisonStatus, ...] = typing.get_args(ComparisonStatus)

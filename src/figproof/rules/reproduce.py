@@ -94,6 +94,13 @@ def _drift_hit(c: OutputComparison, run: ScriptRun, source: Source | None, runni
                        source=source, severity="warning", confidence="possible", key=f"{key}:environment")
         return Hit(message=f"{what} is stale: {run.path} now draws it differently ({detail})",
                    source=source, key=f"{key}:stale")
+    if c.status == "rendering":
+        cause = f" (the committed file was made with matplotlib {made_with}, this run used {now})" if env else ""
+        return Hit(message=f"{what} differs from what {run.path} draws now only in how text and edges are "
+                           f"rasterised (anti-aliasing, hinting, sub-pixel placement){cause}: every mark, text and "
+                           f"axis is where it was, so the figure is not stale ({c.differing_pixels} of "
+                           f"{c.total_pixels} pixels differ by small shifts)",
+                   source=source, severity="note", confidence="likely", key=f"{key}:rendering")
     if c.status == "size-mismatch":
         sizes = f"is {_size_text(c.committed_size)} but {run.path} now draws it at {_size_text(c.regenerated_size)}"
         if env:
@@ -126,8 +133,11 @@ def _drift_hit(c: OutputComparison, run: ScriptRun, source: Source | None, runni
         in the repo do not produce: the figure is stale, or the data or code changed after it was made.
         Rasters are compared pixel by pixel (exact first, then the RMS difference on the 0–255 scale);
         vector files byte for byte after dropping dates, producer strings and generated ids. Text rendering
-        changes between matplotlib releases, so when the committed file records a different matplotlib
-        version than the running one, the finding says so: "environment differs" is not "figure is stale".
+        changes between matplotlib and FreeType releases: when every changed pixel of a raster is explained
+        by a shift of at most two pixels or an anti-aliasing change of the pixels around it, the content is
+        the same and the finding is a note saying so; a changed title, bar, point or axis range still
+        drifts. When the committed file records a different matplotlib version than the running one, the
+        finding says so: "environment differs" is not "figure is stale".
     """,
     fix="""
         Open the diff image linked in the report. If the new drawing is right, regenerate and commit the
