@@ -507,7 +507,9 @@ def _bounded_scale(lo: float, hi: float, values: np.ndarray) -> bool:
         within them become hard to see. The usual cause is forcing zero into the limits (`set_ylim(0, ...)`,
         `bottom=0`) out of a habit that only bar charts need; bars encode values by length from a baseline, dots
         and lines by position, which needs no baseline. Matplotlib's own autoscaling leaves about 9% of the axis
-        empty (a 5% margin on each side).
+        empty (a 5% margin on each side). Limits that show a whole bounded scale on purpose (0 to 1 for a
+        proportion, 0 to 100%, a five-point rating scale), limits shared with sibling panels so they can be
+        compared, and axes turned off are left alone.
     """,
     fix="""
         Let matplotlib autoscale the value axis, or set limits that hug the data. If zero or another level is
@@ -528,29 +530,29 @@ def _bounded_scale(lo: float, hi: float, values: np.ndarray) -> bool:
     bad="""
         import matplotlib.pyplot as plt
         import numpy as np
-        # germination rate (%) of seed lots stored at two temperatures
-        cold = np.array([88.0, 90.5, 91.0, 92.5, 93.0, 94.5])
-        warm = np.array([84.0, 85.5, 87.0, 88.0, 89.5, 90.0])
+        # shoot height (cm) of seedlings grown at two temperatures
+        cold = np.array([41.2, 42.0, 42.6, 43.1, 43.9, 44.5])
+        warm = np.array([43.8, 44.6, 45.1, 45.9, 46.4, 47.0])
         fig, ax = plt.subplots()
         ax.scatter(np.zeros(6), cold)
         ax.scatter(np.ones(6), warm)
         ax.set_xticks([0, 1], ["4 °C", "20 °C"])
-        ax.set_ylim(0, 100)
-        ax.set_ylabel("germination (%)")
-        fig.savefig("germination.png")
+        ax.set_ylim(0, 50)
+        ax.set_ylabel("shoot height (cm)")
+        fig.savefig("shoots.png")
     """,
     good="""
         import matplotlib.pyplot as plt
         import numpy as np
-        # germination rate (%) of seed lots stored at two temperatures
-        cold = np.array([88.0, 90.5, 91.0, 92.5, 93.0, 94.5])
-        warm = np.array([84.0, 85.5, 87.0, 88.0, 89.5, 90.0])
+        # shoot height (cm) of seedlings grown at two temperatures
+        cold = np.array([41.2, 42.0, 42.6, 43.1, 43.9, 44.5])
+        warm = np.array([43.8, 44.6, 45.1, 45.9, 46.4, 47.0])
         fig, ax = plt.subplots()
         ax.scatter(np.zeros(6), cold)
         ax.scatter(np.ones(6), warm)
         ax.set_xticks([0, 1], ["4 °C", "20 °C"])
-        ax.set_ylabel("germination (%)")
-        fig.savefig("germination.png")
+        ax.set_ylabel("shoot height (cm)")
+        fig.savefig("shoots.png")
     """,
 )
 def axis_empty_span(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
