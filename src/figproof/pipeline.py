@@ -17,6 +17,7 @@ from figproof.compare.runs import committed_vs_regenerated, first_vs_second, not
 from figproof.config import Config, load_config
 from figproof.discover.gitrepo import changed_since
 from figproof.discover.inventory import choose_working_dir, discover
+from figproof.discover.outputs import saved_names
 from figproof.discover.shard import select_shard
 from figproof.model.context import Inventory, RunContext
 from figproof.model.findings import CheckResult, Finding, renamed_note
@@ -31,7 +32,7 @@ from figproof.policy.accept import (
 )
 from figproof.policy.verdict import summarise
 from figproof.rules.base import renamed_ids
-from figproof.run.cache import CachingRunner, prune, recorded_dependencies
+from figproof.run.cache import CachingRunner, prune, recorded_dependencies, recorded_uses
 from figproof.run.execute import Options, Runner, Task, execute_all
 from figproof.run.pool import default_runner
 from figproof.run.scratch import make_scratch, remove_tree, sweep_stale
@@ -162,15 +163,21 @@ def _check(path: Path, config: Config, inventory: Inventory, options: CheckOptio
     cached = len(active.answered) if isinstance(active, CachingRunner) else 0
     if options.cache and not selected:
         prune(config.cache_path(), inventory.scripts)
-    context = build_context(config, inventory, runs, artifacts, second)
+    not_run = tuple(t for t in (*inventory.scripts, *inventory.excluded) if t not in {task.script for task in tasks})
+    context = build_context(config, inventory, runs, artifacts, second, unrun_uses(config, not_run))
     findings = rules.apply(runs, context, config.rules)
-    findings, notes = accept_findings(findings, config, inventory)
+    pending = pending_findings(runs, context, config, findings)
+    findings, notes = accept_findings([*findings, *pending], config, inventory, ran={t.script for t in tasks})
+    later = {f.fingerprint for f in pending}
+    pending = [f for f in findings if f.fingerprint in later]
+    findings = [f for f in findings if f.fingerprint not in later]
     notes = [*config.notes, *notes]
     if not inventory.scripts:
         notes.append("no figure scripts found (no .py or .ipynb file imports matplotlib, seaborn or pandas plotting)")
     summary = summarise(runs, findings, config.fail_on)
     result = CheckResult(root=_shown_root(config.root, path), version=__version__, runs=runs,
-                         findings=tuple(findings), summary=summary, fail_on=config.fail_on, notes=tuple(notes))
+                         findings=tuple(findings), summary=summary, fail_on=config.fail_on, notes=tuple(notes),
+                         not_run=not_run, pending=tuple(pending))
     return Checked(result=result, config=config, inventory=inventory, context=context, artifacts=artifacts,
                    cached=cached)
 
@@ -203,8 +210,34 @@ class _Lazy:
         return self._make().run(task, options)
 
 
+def unrun_uses(config: Config, not_run: tuple[str, ...]) -> dict[str, tuple[str, ...] | None]:
+    """What each script that did not run writes or reads: its last cached run, else the names its code saves to."""
+    if not not_run:
+        return {}
+    recorded = recorded_uses(config.cache_path(), config.root)
+    out: dict[str, tuple[str, ...] | None] = {}
+    for script in not_run:
+        known = recorded.get(script)
+        out[script] = tuple(sorted(known)) if known is not None else saved_names(config.root, script)
+    return out
+
+
+def pending_findings(runs: tuple[ScriptRun, ...], context: RunContext, config: Config,
+                     findings: list[Finding]) -> list[Finding]:
+    """Orphans judged over the scripts that ran alone, which this partial check could not confirm.
+
+    ``figproof merge`` confirms those that no other shard's scripts wrote or read.
+    """
+    if not any(known is None for known in context.unrun.values()):
+        return []
+    alone = replace(context, unrun={})
+    seen = {f.fingerprint for f in findings}
+    return [f for f in rules.apply(runs, alone, config.rules, only=("figure-orphan",)) if f.fingerprint not in seen]
+
+
 def build_context(config: Config, inventory: Inventory, runs: tuple[ScriptRun, ...], artifacts: Path,
-                  second: tuple[Path, list[ScriptRun]] | None) -> RunContext:
+                  second: tuple[Path, list[ScriptRun]] | None,
+                  unrun: dict[str, tuple[str, ...] | None] | None = None) -> RunContext:
     """Everything run-scope rules need: comparisons with committed files and, with --twice, the second run."""
     tolerance = rules.knob_value(config.rules, "figure-drift", "tolerance")
     second_runs: dict[str, ScriptRun] = {}
@@ -217,7 +250,8 @@ def build_context(config: Config, inventory: Inventory, runs: tuple[ScriptRun, .
         inventory=inventory, runs=runs,
         comparisons=committed_vs_regenerated(runs, config.root, artifacts, tolerance),
         notebook_comparisons=notebook_outputs(runs, config.root, artifacts, tolerance),
-        second_runs=second_runs, rerun_comparisons=reruns, running_version=matplotlib_version())
+        second_runs=second_runs, rerun_comparisons=reruns, running_version=matplotlib_version(),
+        unrun=unrun or {})
 
 
 @functools.cache
@@ -231,8 +265,13 @@ def matplotlib_version() -> str:
         return ""
 
 
-def accept_findings(findings: list[Finding], config: Config, inventory: Inventory) -> tuple[list[Finding], list[str]]:
-    """Apply inline allow comments and the accepted-findings file; return findings and notes about problems."""
+def accept_findings(findings: list[Finding], config: Config, inventory: Inventory,
+                    ran: set[str] | None = None) -> tuple[list[Finding], list[str]]:
+    """Apply inline allow comments and the accepted-findings file; return findings and notes about problems.
+
+    ``ran``: the scripts a partial check ran (None: all of them); an accepted entry is called stale only
+    when this check could have produced its finding.
+    """
     catalogue = rules.by_id()
     known = catalogue.keys()
     renamed = renamed_ids(catalogue)
@@ -258,6 +297,8 @@ def accept_findings(findings: list[Finding], config: Config, inventory: Inventor
               for old in former]
     entries = [replace(e, rule=renamed[e.rule]) if e.rule in renamed else e for e in entries]
     marked, stale = apply_acceptance(findings, allows, entries)
+    if ran is not None and set(inventory.scripts) - ran:
+        stale = [e for e in stale if e.path in ran]
     notes += [f"{config.accepted_file}: entry for {e.rule} in {e.path} matches no finding any more (stale)"
               for e in stale]
     return sorted(marked, key=Finding.sort_key), notes

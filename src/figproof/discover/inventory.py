@@ -289,7 +289,8 @@ def _draws(path: Path) -> bool:
 # --------------------------------------------------------------------------- discovery
 
 
-def _scripts(config: Config, files: list[str], skip: _Skipper) -> list[str]:
+def _scripts(config: Config, files: list[str], skip: _Skipper) -> tuple[list[str], list[str]]:
+    """(figure scripts in run order, figure scripts that ``exclude`` keeps out)."""
     candidates = [f for f in files if f.endswith(SCRIPT_SUFFIXES) and not skip.path(f)]
     if config.include:
         chosen: set[str] = set()
@@ -301,8 +302,9 @@ def _scripts(config: Config, files: list[str], skip: _Skipper) -> list[str]:
         picked = sorted(chosen)
     else:
         picked = [f for f in candidates if not _is_test(f) and _draws(config.root / f)]
-    picked = [f for f in picked if not _any_match(f, config.exclude)]
-    return _ordered(config, picked, set(files))
+    excluded = [f for f in picked if _any_match(f, config.exclude)]
+    picked = [f for f in picked if f not in excluded]
+    return _ordered(config, picked, set(files)), excluded
 
 
 def _ordered(config: Config, picked: list[str], files: set[str]) -> list[str]:
@@ -349,7 +351,8 @@ def discover(config: Config) -> Inventory:
     -------
     Inventory
         Repo-relative POSIX paths: scripts (``order`` entries first, then sorted),
-        data files and figure files (sorted), the tracked files when git is used.
+        data files and figure files (sorted; ``exclude`` removes figure files too), the tracked files
+        when git is used, and the figure scripts ``exclude`` keeps from running.
 
     Raises
     ------
@@ -359,17 +362,19 @@ def discover(config: Config) -> Inventory:
     root = config.root
     files, is_git = iter_files(root)
     skip = _Skipper(root, files)
-    scripts = _scripts(config, files, skip)
+    scripts, excluded = _scripts(config, files, skip)
     own = _own_files(config)
     visible = [f for f in files if not skip.path(f) and not any(f == o or f.startswith(o + "/") for o in own)]
     data = [f for f in visible if _suffix(f) in DATA_SUFFIXES and not _NOT_DATA.match(f.rsplit("/", 1)[-1])]
-    figures = [f for f in visible if _suffix(f) in FIGURE_SUFFIXES and _figure_file(config, f)]
+    figures = [f for f in visible if _suffix(f) in FIGURE_SUFFIXES and _figure_file(config, f)
+               and not _any_match(f, config.exclude)]  # a photo or diagram in `exclude` is no orphan
     return Inventory(
         scripts=tuple(scripts),
         data_files=tuple(data),
         figure_files=tuple(figures),
         tracked=tuple(files) if is_git else (),
         is_git=is_git,
+        excluded=tuple(f for f in excluded if f not in scripts),
     )
 
 

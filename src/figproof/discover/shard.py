@@ -132,10 +132,14 @@ def merge_reports(json_texts: Sequence[str], names: Sequence[str] | None = None)
                 owner[path] = n
             scripts.append(s)
     scripts.sort(key=lambda s: str(s.get("path", "")) if isinstance(s, dict) else "")
-    findings = sorted((f for r in reports for f in r["findings"]), key=_finding_order)
+    ran = set(owner)
+    not_run = sorted({s for r in reports for s in _strings(r.get("not_run")) if s not in ran})
+    findings, pending = _judge_orphans(reports, not_run)
+    findings.sort(key=_finding_order)
 
     # Other top-level keys (e.g. a fail-on setting) must agree, except lists, which are joined.
-    for key in sorted({k for r in reports for k in r} - {"schema", "tool", "root", "scripts", "findings", "summary"}):
+    for key in sorted({k for r in reports for k in r} - {"schema", "tool", "root", "scripts", "findings", "summary",
+                                                          "not_run", "pending"}):
         values = [r[key] for r in reports if key in r]
         if all(isinstance(v, list) for v in values):
             joined: list[Any] = []
@@ -158,9 +162,56 @@ def merge_reports(json_texts: Sequence[str], names: Sequence[str] | None = None)
             summary[_COUNT_KEYS[f["severity"]]] += 1
     if accepted or any("accepted" in r["summary"] for r in reports):
         summary["accepted"] = accepted
-    summary["passed"] = all(r["summary"]["passed"] for r in reports)
+    fail_on = merged.get("fail_on")
+    if fail_on in (*SEVERITIES, "never"):  # the verdict over the merged findings (orphans judged again)
+        summary["passed"] = not any(isinstance(f, dict) and not f.get("accepted") and _crosses(f.get("severity"), fail_on)
+                                    for f in findings)
+    else:
+        summary["passed"] = all(r["summary"]["passed"] for r in reports)
     merged.update(scripts=scripts, findings=findings, summary=summary)
+    if not_run:
+        merged.update(not_run=not_run, pending=sorted(pending, key=_finding_order))
     return merged
+
+
+def _strings(value: Any) -> list[str]:
+    return [v for v in value if isinstance(v, str)] if isinstance(value, list) else []
+
+
+def _crosses(severity: Any, fail_on: str) -> bool:
+    if fail_on == "never" or severity not in SEVERITIES:
+        return False
+    return SEVERITIES.index(severity) <= SEVERITIES.index(fail_on)
+
+
+def _judge_orphans(reports: list[dict[str, Any]], not_run: list[str]) -> tuple[list[Any], list[Any]]:
+    """Findings of all shards with orphans judged over the union of their scripts; and what stays pending.
+
+    A shard reports a committed figure that its own scripts did not write either as a finding (when it
+    knew what the other scripts write) or as pending.  Over the union it is an orphan only when every
+    shard saw it so; while some figure script ran in no shard (``not_run``), it stays pending.
+    """
+    def view(r: dict[str, Any]) -> dict[tuple[str, str], Any]:
+        out = {}
+        for f in [*r["findings"], *(r.get("pending") or [])]:
+            if isinstance(f, dict) and f.get("rule") == "figure-orphan":
+                out[(str(f.get("path")), str(f.get("fingerprint")))] = f
+        return out
+
+    views = [view(r) for r in reports]
+    common = set(views[0]).intersection(*views[1:])
+    others = [f for r in reports for f in r["findings"] if not (isinstance(f, dict) and f.get("rule") == "figure-orphan")]
+    orphans: dict[tuple[str, str], Any] = {}
+    for key in sorted(common):
+        # the shard whose view says scripts did not finish has the more careful wording
+        candidates = [v[key] for v in views]
+        orphans[key] = next((c for c in candidates if c.get("confidence") == "possible"), candidates[0])
+    decided = {key for r in reports for f in r["findings"] if isinstance(f, dict)
+               and (key := (str(f.get("path")), str(f.get("fingerprint")))) in orphans}
+    if not not_run:
+        return others + list(orphans.values()), []
+    findings = others + [f for k, f in orphans.items() if k in decided]
+    return findings, [f for k, f in orphans.items() if k not in decided]
 
 
 __all__ = ["REPORT_SCHEMA", "ShardError", "merge_reports", "parse_shard", "select_shard", "shard_of"]

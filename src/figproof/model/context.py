@@ -30,6 +30,19 @@ def is_figure_output(ev: FileEvent) -> bool:
     return ev.action == "save" or (ev.action == "write" and kind_of(ev.path) != "other")
 
 
+def files_written(run: ScriptRun) -> set[str]:
+    """Repo-relative files a run saved or wrote (file events and the figures' recorded outputs)."""
+    out = {ev.path for ev in run.events
+           if ev.action in ("save", "write") and ev.inside_repo and is_repo_path(ev.path)}
+    out.update(path for fig in run.figures for path in fig.outputs if is_repo_path(path))
+    return out
+
+
+def files_read(run: ScriptRun) -> set[str]:
+    """Repo-relative files a run read."""
+    return {ev.path for ev in run.events if ev.action == "read" and ev.inside_repo and is_repo_path(ev.path)}
+
+
 @dataclass(frozen=True, slots=True, kw_only=True)
 class Inventory:
     """Files of the checked repo, as discovery found them (repo-relative POSIX paths)."""
@@ -39,6 +52,7 @@ class Inventory:
     figure_files: tuple[str, ...] = ()  # committed figure files (png, svg, pdf, jpg, tif, eps)
     tracked: tuple[str, ...] = ()  # every file git tracks (empty when not a git repo)
     is_git: bool = False
+    excluded: tuple[str, ...] = ()  # figure scripts that `exclude` keeps from running
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -59,6 +73,10 @@ class RunContext:
     comparison's ``path`` is the saved file's repo path, or the figure id when it
     compares the two runs' renderings of a figure that was not saved.
     ``running_version``: the matplotlib version the children ran with.
+    ``unrun``: the figure scripts this check did not run (not selected by ``--changed-files``,
+    ``--changed-since`` or ``--shard``, or kept out by ``exclude``), each with the repo files it is known to
+    write or read (from its last cached run, or the literal names its code saves to), or None when
+    nobody can tell what it writes.
     """
 
     inventory: Inventory = field(default_factory=Inventory)
@@ -68,6 +86,7 @@ class RunContext:
     second_runs: Mapping[str, ScriptRun] = field(default_factory=_empty_mapping)
     rerun_comparisons: Mapping[str, tuple[OutputComparison, ...]] = field(default_factory=_empty_mapping)
     running_version: str = ""
+    unrun: Mapping[str, tuple[str, ...] | None] = field(default_factory=_empty_mapping)
 
     def written_by(self) -> dict[str, tuple[str, ...]]:
         """Repo-relative files each run saved or wrote, keyed by file, scripts in execution order."""

@@ -112,3 +112,6 @@ class CheckResult:
     summary: Summary
     fail_on: str = "error"
     notes: tuple[str, ...] = ()
+    not_run: tuple[str, ...] = ()  # figure scripts a partial check did not run (selection, shard, exclude)
+    # findings a partial check cannot judge alone (orphans a script that did not run may write); merge judges them
+    pending: tuple[Finding, ...] = ()

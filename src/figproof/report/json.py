@@ -55,7 +55,7 @@ def finding_json(f: Finding) -> dict[str, Any]:
 
 def report_dict(result: CheckResult, *, timings: bool = False) -> dict[str, Any]:
     s = result.summary
-    return {
+    out: dict[str, Any] = {
         "schema": SCHEMA,
         "tool": {"name": "figproof", "version": result.version},
         "root": result.root,
@@ -66,6 +66,10 @@ def report_dict(result: CheckResult, *, timings: bool = False) -> dict[str, Any]
                     "notes": s.notes, "accepted": s.accepted, "passed": s.passed},
         "notes": list(result.notes),
     }
+    if result.not_run:  # a partial check: which figure scripts did not run, and what it could not judge alone
+        out["not_run"] = list(result.not_run)
+        out["pending"] = [finding_json(f) for f in result.pending]
+    return out
 
 
 def render(result: CheckResult, *, timings: bool = False) -> str:

@@ -76,6 +76,23 @@ def _scripts_table(runs: tuple[ScriptRun, ...], timings: bool) -> list[str]:
     return rows
 
 
+def partial_notes(result: CheckResult) -> list[str]:
+    """What a partial check did not run, and the committed figures it could not judge alone."""
+    if not result.not_run:
+        return []
+    not_run = result.not_run
+    shown = ", ".join(f"`{s}`" for s in not_run[:10]) + (f" and {len(not_run) - 10} more" if len(not_run) > 10 else "")
+    total = result.summary.scripts + len(not_run)
+    out = [f"partial check: {len(not_run)} of {total} figure scripts did not run ({shown})"]
+    n = len(result.pending)
+    if n:
+        them = "them" if n != 1 else "it"
+        out.append(f"{n} committed figure{'s' * (n != 1)} that no script of this check wrote or read "
+                   f"{'were' if n != 1 else 'was'} not judged as orphan{'s' * (n != 1)}: a script that did not run "
+                   f"may write {them} (`figproof merge` judges the shards of a check together)")
+    return out
+
+
 def _provenance(manifest: Mapping[str, Any]) -> list[str]:
     from figproof.report.provenance import provenance_rows
 
@@ -120,7 +137,7 @@ def render(result: CheckResult, *, images: Mapping[str, str] | None = None, timi
         lines += ["### Scripts", "", *_scripts_table(result.runs, timings), ""]
     if provenance is not None:
         lines += _provenance(provenance)
-    notes = list(result.notes) + [f"`{r.path}`: {n}" for r in result.runs for n in r.notes]
+    notes = partial_notes(result) + list(result.notes) + [f"`{r.path}`: {n}" for r in result.runs for n in r.notes]
     if notes:
         lines += ["### Notes", ""] + [f"- {_cell(n)}" for n in notes] + [""]
     rules_seen = sorted({f.rule for f in open_})

@@ -238,5 +238,7 @@ def result_from_json(data: dict[str, Any]) -> CheckResult:
     s = data["summary"]
     summary = Summary(scripts=s["scripts"], figures=s["figures"], errors=s["errors"], warnings=s["warnings"],
                       notes=s["notes"], accepted=s.get("accepted", 0), passed=s["passed"])
+    pending = tuple(Finding.from_json({k: v for k, v in f.items() if k in keys}) for f in data.get("pending", ()))
     return CheckResult(root=data.get("root", "."), version=data["tool"]["version"], runs=(), findings=findings,
-                       summary=summary, fail_on=data.get("fail_on", "error"), notes=tuple(data.get("notes", [])))
+                       summary=summary, fail_on=data.get("fail_on", "error"), notes=tuple(data.get("notes", [])),
+                       not_run=tuple(data.get("not_run", ())), pending=pending)

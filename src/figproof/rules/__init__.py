@@ -9,7 +9,7 @@ from __future__ import annotations
 import dataclasses
 import hashlib
 import re
-from collections.abc import Iterable, Mapping
+from collections.abc import Collection, Iterable, Mapping
 from typing import Literal
 
 from figproof.model.context import RunContext
@@ -105,8 +105,9 @@ def apply(
     runs: Iterable[ScriptRun],
     context: RunContext,
     settings: Mapping[str, tuple[Severity | Literal["off"] | None, Mapping[str, float]]] | None = None,
+    only: Collection[str] | None = None,
 ) -> list[Finding]:
-    """Run every enabled rule; ``settings`` maps rule id to (severity or "off", knob overrides).
+    """Run every enabled rule (or the rules in ``only``); ``settings`` maps rule id to (severity or "off", knobs).
 
     Hits are grouped so each cause is reported once (see :class:`figproof.model.findings.Hit`).
     """
@@ -114,6 +115,8 @@ def apply(
     runs = list(runs)
     found: list[Finding] = []
     for r in RULES:
+        if only is not None and r.id not in only:
+            continue
         severity, overrides = settings.get(r.id, (None, {}))
         if severity == "off":
             continue

@@ -9,11 +9,12 @@ file: :mod:`figproof.compare.files` did the I/O before the rules run.
 from __future__ import annotations
 
 from collections.abc import Iterator, Sequence
+from pathlib import PurePosixPath
 
 import numpy as np
 
 from figproof.model.comparison import OutputComparison
-from figproof.model.context import RunContext, is_figure_output, is_repo_path
+from figproof.model.context import RunContext, files_read, is_figure_output, is_repo_path
 from figproof.model.findings import Hit
 from figproof.model.records import FigureModel, FileEvent, ScriptRun, Source
 from figproof.rules.base import Knob, Knobs, pct, rule
@@ -343,7 +344,11 @@ def input_outside_repo(run: ScriptRun, context: RunContext, knobs: Knobs) -> Ite
         A committed figure that no script writes has no code behind it: it was drawn by hand, by a script
         that was deleted, or under another name. Nobody can say which data it shows or regenerate it.
         The whole repo is needed to decide this, so the finding is computed once per check (attached to the
-        first script run) and located at the figure file itself.
+        first script run) and located at the figure file itself. A check that runs only some scripts
+        (`--changed-files`, `--changed-since`, `--shard`, `exclude`) judges a file only when it knows what
+        the other scripts write: from their last run in the result cache, or from the literal file names
+        their code saves to. Otherwise the file is listed as not judged, and `figproof merge` judges the
+        shards of a check together.
     """,
     fix="""
         Add the script that draws the figure (or fix the output path of the script that should), or delete
@@ -363,15 +368,22 @@ def input_outside_repo(run: ScriptRun, context: RunContext, knobs: Knobs) -> Ite
     good=_GOOD_PLOT,
 )
 def figure_orphan(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator[Hit]:
-    """A committed figure file that no script writes in this run."""
+    """A committed figure file that no script writes."""
     if not context.runs or run.path != context.runs[0].path:
         return  # evaluated once per check, when the engine visits the first run
-    produced = set(context.written_by())
-    read = {ev.path for r in context.runs for ev in r.events if ev.action == "read" and ev.inside_repo}
+    used = set(context.written_by())
+    used |= {path for r in context.runs for path in files_read(r)}
+    unknown = [s for s, known in context.unrun.items() if known is None]
+    known_names = {PurePosixPath(p).name for known in context.unrun.values() for p in known or ()}
+    for known in context.unrun.values():
+        used.update(known or ())
     unfinished = [r.path for r in context.runs if r.status != "ok"]
     for path in sorted(set(context.inventory.figure_files)):
-        if path in produced or path in read:
-            continue
+        if path in used or unknown:
+            continue  # a script that did not run in this check may write it: judged only over the scripts that ran
+        name = PurePosixPath(path)
+        if name.name in known_names or name.stem in known_names:
+            continue  # a script that did not run saves a file of this name (maybe from another folder)
         if unfinished:
             scripts = f"{len(unfinished)} script" + ("s" if len(unfinished) != 1 else "")
             yield Hit(message=f"{path} is committed but no script wrote it in this run; "

@@ -67,6 +67,7 @@ from typing import Any, Literal
 from figproof import __version__
 from figproof.discover.imports import local_imports, search_folders
 from figproof.hashing import file_sha256
+from figproof.model.context import files_written
 from figproof.model.records import ScriptRun, dump_run, load_run
 from figproof.run.execute import Options, Runner, Task, artifact_folder
 from figproof.run.scratch import MARKER, owner_alive, owner_record, read_owner
@@ -341,6 +342,7 @@ class CachingRunner:
             "environment": self.environment, "status": run.status, "renders": options.renders,
             "files": [{"path": p, "sha256": files[p]} for p in sorted(files)],
             "folders": [{"path": f, "names": _folder_names(root / f)} for f in folders],
+            "outputs": sorted(files_written(run)),  # for judging orphans when this script does not run
         }
         problem = self._store(entry, key_data, run, artifact_folder(options.artifacts, task.script))
         if problem:
@@ -469,6 +471,28 @@ def recorded_dependencies(cache_dir: Path) -> dict[str, set[str]]:
         try:
             key = json.loads(key_file.read_text(encoding="utf-8"))
             out.setdefault(str(key["script"]), set()).update(str(f["path"]) for f in key.get("files", ()))
+        except (OSError, ValueError, KeyError, TypeError):
+            continue
+    return out
+
+
+def recorded_uses(cache_dir: Path, root: Path) -> dict[str, frozenset[str]]:
+    """Repo files each cached script wrote or read when it last ran, for scripts whose code is unchanged.
+
+    Entries written before the cache recorded outputs, unreadable entries and entries of a script
+    that changed since are left out (what the script writes now is not known).
+    """
+    out: dict[str, frozenset[str]] = {}
+    runs = cache_dir / RUNS
+    if not runs.is_dir():
+        return out
+    for key_file in sorted(runs.glob(f"*/{KEY_FILE}")):
+        try:
+            key = json.loads(key_file.read_text(encoding="utf-8"))
+            script, outputs = str(key["script"]), key["outputs"]
+            if not _safe_relative(script) or file_sha256(root / script) != key["script_sha256"]:
+                continue
+            out[script] = frozenset([*map(str, outputs), *(str(f["path"]) for f in key.get("files", ()))])
         except (OSError, ValueError, KeyError, TypeError):
             continue
     return out
