@@ -75,6 +75,38 @@ def python_source(source: str) -> str:
     return "\n".join("" if _IPYTHON_LINE.match(line) else line for line in lines)
 
 
+_BACKEND_MAGIC = re.compile(r"^[ \t]*%matplotlib[ \t]+(?P<backend>[\w.:/-]+)", re.M)
+_CLOSE_SETTING = re.compile(r"(?:InlineBackend\.close_figures\s*=\s*|set_matplotlib_close\(\s*(?:close\s*=\s*)?)"
+                            r"(?P<value>True|False)")
+
+
+@dataclass(frozen=True, slots=True)
+class InlineDisplay:
+    """What Jupyter's inline display does at the end of a cell (matplotlib-inline's ``flush_figures``).
+
+    ``inline``: the inline backend is on (the default; ``%matplotlib widget`` and the like turn it off).
+    ``close_figures``: its ``InlineBackend.close_figures`` setting (default True; ``%config
+    InlineBackend.close_figures = False`` or ``set_matplotlib_close(False)`` turn it off).
+    """
+
+    inline: bool = True
+    close_figures: bool = True
+
+    def after(self, source: str) -> InlineDisplay:
+        """The settings once a cell with this source has run (the last statement of each kind wins)."""
+        inline, close = self.inline, self.close_figures
+        for m in _BACKEND_MAGIC.finditer(source):
+            inline = m.group("backend").lower() in ("inline", "module://matplotlib_inline.backend_inline")
+        for m in _CLOSE_SETTING.finditer(source):
+            close = m.group("value") == "True"
+        return InlineDisplay(inline=inline, close_figures=close)
+
+    @property
+    def closes(self) -> bool:
+        """Whether figures drawn in a cell are shown and closed when the cell ends."""
+        return self.inline and self.close_figures
+
+
 def blanked_lines(source: str) -> int:
     """How many lines :func:`python_source` blanks in ``source``."""
     before = source.splitlines()
@@ -82,4 +114,4 @@ def blanked_lines(source: str) -> int:
     return sum(1 for i, line in enumerate(before) if line and (i >= len(after) or after[i] != line))
 
 
-__all__ = ["FIRST_CELL", "MATPLOTLIB_MAGIC", "Cell", "NotebookError", "blanked_lines", "code_cells", "python_source"]
+__all__ = ["FIRST_CELL", "MATPLOTLIB_MAGIC", "Cell", "InlineDisplay", "NotebookError", "blanked_lines", "code_cells", "python_source"]

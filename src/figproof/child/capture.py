@@ -108,6 +108,10 @@ class Recorder:
     events: list[FileEvent] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
     drawn: set[int] = field(default_factory=set)  # figures fully drawn by a savefig and unchanged since
+    notebook: bool = False  # running a notebook's cells (the inline display's rules apply)
+    cell_drew: bool = False  # a figure was made in the current notebook cell
+    cell_closes: bool = True  # the inline display closes figures on show and at the end of this cell
+    close_all: Any = None  # closes every pyplot figure (set by the matplotlib hooks)
     _skip_dirs: tuple[str, ...] = ()
     _file_cache: dict[str, str | None] = field(default_factory=dict)
     _busy: bool = False
@@ -164,6 +168,13 @@ class Recorder:
                         lib = label
             frame = frame.f_back
         return None, lib
+
+    def shown_text(self, text: str) -> str:
+        """``text`` with the repo view's own folder taken out, so a message names repo-relative paths only
+        (the view is a temporary folder that differs from run to run)."""
+        for root in dict.fromkeys((str(self.sandbox), os.path.realpath(self.sandbox))):
+            text = text.replace(root + os.sep, "").replace(root, ".")
+        return text
 
     def scratch(self, resolved: Path) -> bool:
         """A path outside the repo where writing is harmless: temp and system folders, but not the user's repo."""
@@ -542,6 +553,19 @@ def drew_as_displayed(fig: Any, fname: Any, kwargs: dict[str, Any]) -> bool:
     return fmt in _AGG_FORMATS and same_dpi and not bbox
 
 
+def saved_name(fname: Any, fmt: Any) -> Any:
+    """The file name savefig writes: without an extension and a ``format``, matplotlib appends
+    ``rcParams["savefig.format"]`` (``FigureCanvasBase.print_figure``); a file object is returned as is."""
+    import matplotlib
+
+    if fmt is not None or not isinstance(fname, (str, os.PathLike)):
+        return fname
+    text = os.fspath(fname)
+    if not isinstance(text, str) or os.path.splitext(text)[1][1:]:
+        return fname
+    return text.rstrip(".") + "." + str(matplotlib.rcParams["savefig.format"])
+
+
 def install_matplotlib_hooks(rec: Recorder) -> None:
     """Pin the Agg backend and wrap the Axes/Figure methods that capture needs."""
     import matplotlib
@@ -562,7 +586,22 @@ def install_matplotlib_hooks(rec: Recorder) -> None:
 
     matplotlib.use = ignore_backend
     plt.switch_backend = ignore_backend
-    plt.show = lambda *a, **k: None
+    real_close = plt.close
+
+    def close_all() -> None:
+        real_close("all")  # the recorder keeps its own references: closed figures are still extracted
+
+    rec.close_all = close_all
+
+    def show(*args: Any, **kwargs: Any) -> None:
+        # A blocking show returns when the user has closed the windows, so the next pyplot call starts a new
+        # figure: close them (they stay recorded).  A non-blocking show (block=False, or interactive mode
+        # after plt.ion()) leaves them open.  In a notebook the inline display's show closes them.
+        block = kwargs.get("block", args[0] if args else None)
+        if rec.cell_closes if rec.notebook else (not matplotlib.is_interactive() if block is None else bool(block)):
+            close_all()
+
+    plt.show = show
     plt.pause = lambda *a, **k: None
 
     Axes = matplotlib.axes.Axes
@@ -574,6 +613,7 @@ def install_matplotlib_hooks(rec: Recorder) -> None:
     def figure_init(self: Any, *args: Any, **kwargs: Any) -> None:
         real_init(self, *args, **kwargs)
         rec.figures.append(self)  # a strong reference keeps figures the script closes
+        rec.cell_drew = True
         rec.figure_sources[id(self)] = rec.user_source(2)[0]
 
     Figure.__init__ = figure_init  # type: ignore[method-assign]
@@ -582,7 +622,7 @@ def install_matplotlib_hooks(rec: Recorder) -> None:
 
     @functools.wraps(real_savefig)
     def savefig(self: Any, fname: Any, *args: Any, **kwargs: Any) -> Any:
-        info = rec.classify(fname)
+        info = rec.classify(saved_name(fname, kwargs.get("format")))
         src, _ = rec.user_source(2)
         if info is not None:
             shown, inside = info
@@ -601,7 +641,7 @@ def install_matplotlib_hooks(rec: Recorder) -> None:
             self.stale = False
             rec.drawn.add(id(self))
         if info is not None:
-            fmt = kwargs.get("format") or Path(os.fsdecode(fname)).suffix.lstrip(".").lower() or "png"
+            fmt = kwargs.get("format") or Path(info[0]).suffix.lstrip(".").lower() or "png"
             rec.outputs.setdefault(id(self), []).append(info[0])
             rec.event(FileEvent(action="save", path=info[0], inside_repo=info[1], format=fmt, source=src))
         return result

@@ -126,29 +126,54 @@ def limit_memory(mib: int) -> bool:
         return False
 
 
-def notebook_cells(path: Path) -> list[tuple[int, str, int]]:
-    """Code cells of a notebook as (number, Python source, IPython lines blanked); ValueError when unreadable."""
-    from figproof.notebook import NotebookError, blanked_lines, code_cells, python_source
+def notebook_cells(path: Path) -> list[tuple[int, str, int, bool]]:
+    """Code cells of a notebook as (number, Python source, IPython lines blanked, whether the inline display
+    closes the figures at the end of the cell); ValueError when unreadable."""
+    from figproof.notebook import InlineDisplay, NotebookError, blanked_lines, code_cells, python_source
 
     try:
         cells = code_cells(path.read_bytes())
     except (OSError, NotebookError) as exc:
         raise ValueError(f"cannot read notebook: {exc}") from None
-    return [(c.number, python_source(c.source) + "\n", blanked_lines(c.source)) for c in cells]
+    out = []
+    display = InlineDisplay()
+    for c in cells:
+        display = display.after(c.source)
+        out.append((c.number, python_source(c.source) + "\n", blanked_lines(c.source), display.closes))
+    return out
 
 
 def _user_frame(tb: Any, rec: Any) -> Any:
-    """The innermost traceback frame in the user's code: where their script failed."""
+    """The innermost traceback frame in the user's code: where their script failed (maybe in a helper module)."""
     found = None
     for frame, lineno in traceback.walk_tb(tb):
         found = rec.source_at(frame.f_code.co_filename, lineno) or found
     return found
 
 
+def _own_frame(tb: Any, rec: Any) -> Any:
+    """The innermost traceback frame in the script or notebook that ran (the call into a helper module)."""
+    found = None
+    for frame, lineno in traceback.walk_tb(tb):
+        src = rec.source_at(frame.f_code.co_filename, lineno)
+        if src is not None and src.path == rec.script:
+            found = src
+    return found
+
+
+def _error(rec: Any, exc: BaseException, **fields: Any) -> Any:
+    """A ScriptError located in the user's code, with the ran script's own frame when the error is elsewhere."""
+    from figproof.model.records import ScriptError
+
+    source = fields.pop("source", None) or _user_frame(exc.__traceback__, rec)
+    own = _own_frame(exc.__traceback__, rec) if source is not None and source.path != rec.script else None
+    message = rec.shown_text(fields.pop("message", ""))
+    return ScriptError(source=source, called_from=own, message=message, **fields)
+
+
 def run_user_code(spec: Spec, rec: Any) -> Any:
     """Execute the script or notebook; return a ScriptError or None."""
     from figproof.child.capture import NetworkRefused
-    from figproof.model.records import ScriptError
 
     path = Path(spec.sandbox) / spec.script
     try:
@@ -160,11 +185,9 @@ def run_user_code(spec: Spec, rec: Any) -> Any:
         code = exc.code
         if code in (None, 0):
             return None
-        return ScriptError(kind="exit", type="SystemExit", message=f"exit status {code}",
-                           source=_user_frame(exc.__traceback__, rec))
+        return _error(rec, exc, kind="exit", type="SystemExit", message=f"exit status {code}")
     except MemoryError as exc:
-        return ScriptError(kind="memory", type="MemoryError", message=str(exc)[:300],
-                           source=_user_frame(exc.__traceback__, rec))
+        return _error(rec, exc, kind="memory", type="MemoryError", message=str(exc)[:300])
     except BaseException as exc:  # noqa: BLE001 - any failure of user code is reported, not raised
         kind: ErrorKind = "exception"
         if isinstance(exc, EOFError) and "needs-input" in rec.notes:
@@ -176,7 +199,7 @@ def run_user_code(spec: Spec, rec: Any) -> Any:
             message = f"{exc.msg} (line {exc.lineno})" if exc.lineno else exc.msg
         if isinstance(exc, NetworkRefused):
             message = message.removeprefix("figproof: ")
-        return ScriptError(kind=kind, type=type(exc).__name__, message=message, source=source)
+        return _error(rec, exc, kind=kind, type=type(exc).__name__, message=message, source=source)
     return None
 
 
@@ -193,11 +216,17 @@ def _run_notebook(path: Path, rec: Any) -> None:
     namespace: dict[str, Any] = {"__name__": "__main__", "__file__": str(path), "display": _display}
     sys.argv = [str(path)]
     sys.path.insert(0, str(path.parent))
-    for index, source, skipped in cells:
+    rec.notebook = True
+    for index, source, skipped, closes in cells:
         if skipped:
-            rec.notes.append(f"cell {index}: skipped {skipped} IPython magic or shell line(s)")
+            rec.notes.append(f"cell {index}: skipped {skipped} IPython magic or shell line{'s' * (skipped != 1)}")
         code = compile(source, f"{path}#cell={index}", "exec")
+        rec.cell_drew, rec.cell_closes = False, closes
         exec(code, namespace)
+        if closes and rec.cell_drew:
+            # as matplotlib-inline's flush_figures after each cell: the figures are shown, then closed,
+            # so the next cell's pyplot calls start new figures
+            rec.close_all()
 
 
 def _display(*objs: Any, **kwargs: Any) -> None:
@@ -259,7 +288,7 @@ def _finish(spec: Spec, rec: Any, error: Any, seconds: float, isolation: tuple[s
 
     out = Path(spec.out)
     figures = []
-    notes = list(dict.fromkeys(n for n in rec.notes if n != "needs-input"))
+    notes = list(dict.fromkeys(rec.shown_text(n) for n in rec.notes if n != "needs-input"))
     render_folder = out / "renders"
     render_folder.mkdir(exist_ok=True)
     for number, fig in enumerate(rec.figures, start=1):

@@ -464,7 +464,8 @@ class ScriptError(Serialisable):
     kind: ErrorKind
     type: str = ""
     message: str = ""
-    source: Source | None = None
+    source: Source | None = None  # the innermost frame in the user's code (maybe in a helper module)
+    called_from: Source | None = None  # when ``source`` is in another file: the ran script's own innermost frame
 
 
 @model

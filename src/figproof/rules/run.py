@@ -7,7 +7,7 @@ from collections.abc import Iterator
 
 from figproof.model.context import RunContext
 from figproof.model.findings import Hit
-from figproof.model.records import FileEvent, ScriptRun
+from figproof.model.records import FileEvent, ScriptRun, Source
 from figproof.rules.base import Knobs, rule
 
 _KIND_TEXT = {
@@ -44,6 +44,21 @@ def _missing_package(run: ScriptRun) -> str | None:
         return None
     found = _NO_MODULE.search(err.message)
     return found.group(1).split(".")[0] if found else None
+
+
+def _location(run: ScriptRun) -> tuple[str, Source | None]:
+    """Where a failure is told (" at fig.py:4") and the finding's location.
+
+    A failure inside a helper module the script imports is the script's finding, at the line that called
+    into the helper, and names the helper's line.
+    """
+    err = run.error
+    if err is None or err.source is None:
+        return "", None
+    if err.source.path == run.path:
+        return f" at {err.source}", err.source
+    called = err.called_from
+    return f" in {err.source}" + (f", called at {called}" if called is not None else ""), called or Source(path=run.path)
 
 
 @rule(
@@ -86,7 +101,7 @@ def script_fails(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator[
     err = run.error
     if run.status == "ok" or run.status == "skipped" or err is None:
         return
-    where = f" at {err.source}" if err.source is not None else ""
+    where, source = _location(run)
     # one finding per cause: a missing input file is input-missing's (or input-outside-repo's) error, and
     # the failure it causes is a note pointing at it; a missing package is one finding for all its scripts
     ev = _missing_input(run)
@@ -95,12 +110,12 @@ def script_fails(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator[
         at = f" at line {err.source.line}" if err.source is not None and err.source.path == run.path \
             and err.source.line is not None and err.source.cell is None else where
         yield Hit(message=f"{run.path} stops{at} because {ev.path} is missing (reported by {rule_id})",
-                  source=err.source, severity="note", key=f"{err.kind}:missing-input")
+                  source=source, severity="note", key=f"{err.kind}:missing-input")
         return
     package = _missing_package(run)
     if package is not None:
         yield Hit(message=f"the package '{package}' is not installed where figproof runs, so the script stops "
-                          f"at its import", source=err.source, key=f"package:{package}", group=f"package:{package}")
+                          f"at its import", source=source, key=f"package:{package}", group=f"package:{package}")
         return
     if err.kind == "exception":
         what = f"raised {err.type}: {err.message}" if err.message else f"raised {err.type}"
@@ -108,7 +123,7 @@ def script_fails(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator[
         what = _KIND_TEXT.get(err.kind, err.kind)
         if err.message:
             what = f"{what} ({err.message})"
-    yield Hit(message=f"{run.path} {what}{where}", source=err.source, key=err.kind)
+    yield Hit(message=f"{run.path} {what}{where}", source=source, key=err.kind)
 
 
 RULES = (script_fails,)
