@@ -117,7 +117,12 @@ def main(argv: Sequence[str] | None = None) -> int:
     if args.command is None:
         parser.print_help()
         return ExitCode.USAGE
+    jobs = getattr(args, "jobs", None)
+    if jobs is not None and jobs < 1:  # as `jobs` in the config: a whole number of scripts at once
+        print(f"figproof: --jobs must be a positive whole number (got {jobs})", file=sys.stderr)
+        return ExitCode.USAGE
     from figproof.interrupt import Interrupted, stop_on_signals
+    from figproof.report.write import OutputError
     from figproof.run.resources import EnvironmentProblem
 
     try:
@@ -128,7 +133,7 @@ def main(argv: Sequence[str] | None = None) -> int:
                 return commands[args.command](args)
             except (Interrupted, KeyboardInterrupt) as exc:
                 return _stopped(exc)
-    except UsageError as exc:
+    except (UsageError, OutputError) as exc:
         print(f"figproof: {exc}", file=sys.stderr)
         return ExitCode.USAGE
     except EnvironmentProblem as exc:
@@ -243,9 +248,13 @@ def do_check(path: Path, args: argparse.Namespace, request: ReportRequest, **opt
 def run_check(path: Path, args: argparse.Namespace, request: ReportRequest, *, shown_root: str | None = None,
               changed: tuple[str, ...] | None = None) -> int:
     """Check ``path`` and write the reports of ``request``."""
-    from figproof.report.write import final_line, write_reports
+    from figproof.report.write import check_outputs, final_line, write_reports
 
+    check_outputs(request)
     checked = do_check(path, args, request, changed=changed)
+    if changed is not None and not checked.result.runs and path.is_file():
+        shutil.rmtree(checked.artifacts, ignore_errors=True)
+        raise UsageError(f"{path}: not a figure script, and no figure script reads or imports it")
     try:
         text = write_reports(checked, request, shown_root=shown_root)
     finally:
@@ -275,8 +284,23 @@ def cmd_check(args: argparse.Namespace) -> int:
         changed = tuple(_repo_relative(root, Path(p)) for p in args.paths)
         return run_check(Path("."), args, report_request(args), changed=tuple(c for c in changed if c))
     if len(args.paths) > 1:
-        raise UsageError("check takes one repo folder (use --changed-files to pass changed files)")
-    return run_check(Path(args.paths[0] if args.paths else "."), args, report_request(args))
+        raise UsageError("check takes one repo folder or file (use --changed-files to pass changed files)")
+    path = Path(args.paths[0] if args.paths else ".")
+    if path.is_file():
+        # a script: check it (with the scripts that read what it writes); a data file or helper module:
+        # the scripts that read or import it
+        from figproof.config import ConfigError, load_config
+        from figproof.rules import by_id
+
+        try:
+            root = load_config(path, rules=by_id()).root
+        except ConfigError as exc:
+            raise UsageError(str(exc)) from None
+        rel = _repo_relative(root, path)
+        if rel is None:
+            raise UsageError(f"{path}: not inside the repo at {root}")
+        return run_check(path, args, report_request(args), changed=(rel,))
+    return run_check(path, args, report_request(args))
 
 
 def _repo_relative(root: Path, p: Path) -> str | None:
@@ -291,7 +315,11 @@ def cmd_demo(args: argparse.Namespace) -> int:
     from figproof.report.write import ReportRequest
 
     base = Path(args.keep) if args.keep else Path(tempfile.mkdtemp(prefix="figproof-demo-"))
-    repo = copy_demo(base)
+    try:
+        repo = copy_demo(base)
+    except OSError as exc:
+        raise UsageError(f"--keep {base}: cannot copy the demo repo there "
+                         f"({exc.strerror or type(exc).__name__}); choose a writable folder") from None
     reports = base / "figproof-report"
     request = ReportRequest(json=reports / "figproof.json", markdown=reports / "summary.md",
                             images=reports / "images", sarif=reports / "figproof.sarif",
@@ -312,8 +340,13 @@ def cmd_accept(args: argparse.Namespace) -> int:
     checked = do_check(Path(args.path), args, ReportRequest())
     shutil.rmtree(checked.artifacts, ignore_errors=True)
     target = checked.config.accepted_path()
-    entries = write_accepted(checked.result.findings, target, renamed=renamed_ids(by_id()))
-    print(f"figproof: {target.name} now accepts {len(entries)} finding(s); commit it, and only new problems "
+    try:
+        entries = write_accepted(checked.result.findings, target, renamed=renamed_ids(by_id()))
+    except OSError as exc:
+        raise UsageError(f"{target}: cannot write the accepted-findings file "
+                         f"({exc.strerror or type(exc).__name__}); make the repo writable") from None
+    n = len(entries)
+    print(f"figproof: {target.name} now accepts {n} finding{'s' * (n != 1)}; commit it, and only new problems "
           f"will fail the build")
     return ExitCode.PASSED
 

@@ -163,6 +163,7 @@ def _check(path: Path, config: Config, inventory: Inventory, options: CheckOptio
     cached = len(active.answered) if isinstance(active, CachingRunner) else 0
     if options.cache and not selected:
         prune(config.cache_path(), inventory.scripts)
+    runs, shared_notes = lift_shared_notes(runs)
     not_run = tuple(t for t in (*inventory.scripts, *inventory.excluded) if t not in {task.script for task in tasks})
     context = build_context(config, inventory, runs, artifacts, second, unrun_uses(config, not_run))
     findings = rules.apply(runs, context, config.rules)
@@ -171,7 +172,7 @@ def _check(path: Path, config: Config, inventory: Inventory, options: CheckOptio
     later = {f.fingerprint for f in pending}
     pending = [f for f in findings if f.fingerprint in later]
     findings = [f for f in findings if f.fingerprint not in later]
-    notes = [*config.notes, *notes]
+    notes = [*config.notes, *shared_notes, *notes]
     if not inventory.scripts:
         notes.append("no figure scripts found (no .py or .ipynb file imports matplotlib, seaborn or pandas plotting)")
     summary = summarise(runs, findings, config.fail_on)
@@ -208,6 +209,21 @@ class _Lazy:
 
     def run(self, task: Task, options: Options) -> ScriptRun:
         return self._make().run(task, options)
+
+
+def lift_shared_notes(runs: tuple[ScriptRun, ...]) -> tuple[tuple[ScriptRun, ...], list[str]]:
+    """A note about the result cache's folder that several runs carry word for word (an unwritable cache),
+    said once for the check; notes about a script's own run stay with it."""
+    counts: dict[str, int] = {}
+    for r in runs:
+        for note in dict.fromkeys(r.notes):
+            if note.startswith("result cache "):
+                counts[note] = counts.get(note, 0) + 1
+    shared = [n for n, c in counts.items() if c > 1]
+    if not shared:
+        return runs, []
+    lifted = tuple(replace(r, notes=tuple(n for n in r.notes if n not in shared)) for r in runs)
+    return lifted, [f"{n} ({counts[n]} scripts)" for n in shared]
 
 
 def unrun_uses(config: Config, not_run: tuple[str, ...]) -> dict[str, tuple[str, ...] | None]:

@@ -28,6 +28,39 @@ from figproof.report import json as json_report
 from figproof.rules import knob_value
 
 
+class OutputError(Exception):
+    """A report path that cannot be written (a folder where a file is asked, no permission); one line."""
+
+
+def check_outputs(request: ReportRequest) -> None:
+    """Refuse, before anything runs, report paths of the wrong kind: a folder for a file, a file for a folder.
+
+    Raises
+    ------
+    OutputError
+        Naming the option and the path.
+    """
+    files = {"--markdown": request.markdown, "--json": request.json, "--sarif": request.sarif,
+             "--gitlab": request.gitlab, "--provenance": request.provenance}
+    for flag, path in files.items():
+        if path is not None and path.is_dir():
+            raise OutputError(f"{flag} {path}: is a folder; give the name of the file to write")
+        if path is not None and _blocked_by_file(path):
+            raise OutputError(f"{flag} {path}: a file stands where its folder should be")
+    if request.images is not None and request.images.exists() and not request.images.is_dir():
+        raise OutputError(f"--images {request.images}: is a file; give a folder for the images")
+    if request.images is not None and _blocked_by_file(request.images):
+        raise OutputError(f"--images {request.images}: a file stands where its folder should be")
+
+
+def _blocked_by_file(path: Path) -> bool:
+    return any(parent.exists() and not parent.is_dir() for parent in path.parents)
+
+
+def _why(exc: OSError) -> str:
+    return exc.strerror or type(exc).__name__
+
+
 def _write(path: Path, text: str) -> None:
     """Write a report whole or not at all: a temporary file in the same folder, then renamed over ``path``.
 
@@ -50,7 +83,7 @@ def _write(path: Path, text: str) -> None:
             room = f" ({human_size(free)} free, {human_size(len(text.encode()))} needed)" if free is not None else ""
             raise EnvironmentProblem(f"no space left in {path.parent} to write the report {path.name}{room}; "
                                      f"free some space or write the report elsewhere") from None
-        raise
+        raise OutputError(f"{path}: cannot write the report ({_why(exc)}); choose a writable path") from None
 
 
 def step_summary_path() -> Path | None:
@@ -144,7 +177,10 @@ def write_images(checked: Checked, folder: Path, relative_to: Path | None) -> di
     from figproof.report.images import panel_needed, write_cvd_panel
     from figproof.run.execute import artifact_folder
 
-    folder.mkdir(parents=True, exist_ok=True)
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise OutputError(f"{folder}: cannot write the images ({_why(exc)}); choose a writable folder") from None
     by_figure: dict[str, set[str]] = {}
     for f in checked.result.findings:
         if f.figure and f.accepted is None:
@@ -168,7 +204,10 @@ def write_images(checked: Checked, folder: Path, relative_to: Path | None) -> di
         if comparison.status == "same" or not diff or not Path(diff).is_file():
             continue
         target = folder / Path(diff).name
-        shutil.copyfile(diff, target)
+        try:
+            shutil.copyfile(diff, target)
+        except OSError as exc:
+            raise OutputError(f"{target}: cannot write the image ({_why(exc)}); choose a writable folder") from None
         links[path] = _link(target, relative_to)
     return links
 
