@@ -29,6 +29,7 @@ from figproof.policy.accept import (
     load_accepted,
     notebook_allow_comments,
     parse_allow_comments,
+    unused_allows,
 )
 from figproof.policy.verdict import summarise
 from figproof.rules.base import renamed_ids
@@ -168,7 +169,8 @@ def _check(path: Path, config: Config, inventory: Inventory, options: CheckOptio
     context = build_context(config, inventory, runs, artifacts, second, unrun_uses(config, not_run))
     findings = rules.apply(runs, context, config.rules)
     pending = pending_findings(runs, context, config, findings)
-    findings, notes = accept_findings([*findings, *pending], config, inventory, ran={t.script for t in tasks})
+    findings, notes = accept_findings([*findings, *pending], config, inventory, ran={t.script for t in tasks},
+                                     finished={r.path for r in runs if r.status == "ok"})
     later = {f.fingerprint for f in pending}
     pending = [f for f in findings if f.fingerprint in later]
     findings = [f for f in findings if f.fingerprint not in later]
@@ -282,11 +284,12 @@ def matplotlib_version() -> str:
 
 
 def accept_findings(findings: list[Finding], config: Config, inventory: Inventory,
-                    ran: set[str] | None = None) -> tuple[list[Finding], list[str]]:
+                    ran: set[str] | None = None, finished: set[str] | None = None) -> tuple[list[Finding], list[str]]:
     """Apply inline allow comments and the accepted-findings file; return findings and notes about problems.
 
     ``ran``: the scripts a partial check ran (None: all of them); an accepted entry is called stale only
-    when this check could have produced its finding.
+    when this check could have produced its finding.  ``finished``: the scripts that ran to the end (None:
+    all); an allow comment is called stale only in one of them.
     """
     catalogue = rules.by_id()
     known = catalogue.keys()
@@ -313,7 +316,15 @@ def accept_findings(findings: list[Finding], config: Config, inventory: Inventor
               for old in former]
     entries = [replace(e, rule=renamed[e.rule]) if e.rule in renamed else e for e in entries]
     marked, stale = apply_acceptance(findings, allows, entries)
-    if ran is not None and set(inventory.scripts) - ran:
+    partial = ran is not None and bool(set(inventory.scripts) - ran)
+    off = [rid for rid, settings in config.rules.items() if settings.severity == "off"]
+    for key, allow in unused_allows(marked, allows, off):
+        path, _, cell = key.partition("#cell=")
+        if (partial and path not in ran) or (finished is not None and path not in finished):
+            continue  # a script this check did not run, or that failed: its findings were not all looked for
+        where = f"{path}, cell {cell}, line {allow.line}" if cell else f"{path}, line {allow.line}"
+        notes.append(f"{where}: allow comment for {allow.rule} matches no finding (stale); remove it")
+    if partial:
         stale = [e for e in stale if e.path in ran]
     notes += [f"{config.accepted_file}: entry for {e.rule} in {e.path} matches no finding any more (stale)"
               for e in stale]

@@ -664,6 +664,23 @@ def install_matplotlib_hooks(rec: Recorder) -> None:
 
         setattr(Axes, method_name, add)
 
+    def tag_limits(which: str) -> None:
+        real = getattr(Axes, f"set_{which}lim")
+
+        @functools.wraps(real)
+        def set_lim(self: Any, *args: Any, **kwargs: Any) -> Any:
+            # the user's own limits (auto=False, the default); autoscaling passes auto=None
+            if kwargs.get("auto", False) is False:
+                src, _ = rec.user_source(2)
+                if src is not None:
+                    setattr(self, f"_figproof_{which}lim_source", src)
+            return real(self, *args, **kwargs)
+
+        setattr(Axes, f"set_{which}lim", set_lim)
+
+    tag_limits("x")
+    tag_limits("y")
+
     for name in ("add_artist", "add_collection", "add_line", "add_patch", "add_image", "add_table",
                  "add_container", "_add_text"):
         if hasattr(Axes, name):

@@ -116,7 +116,8 @@ def _axis(ax: MplAxes, which: str) -> Axis:
                 label=axis.get_label_text(), inverted=bool(lim[0] > lim[1]),
                 categorical="Category" in converter, dates="Date" in converter, ticks=ticks,
                 autoscaled=bool(ax.get_autoscalex_on() if which == "x" else ax.get_autoscaley_on()),
-                shared=_shared(ax, which))
+                shared=_shared(ax, which),
+                limit_source=getattr(ax, f"_figproof_{which}lim_source", None))
 
 
 def _shared(ax: MplAxes, which: str) -> bool:

@@ -53,6 +53,7 @@ class Hit(Serialisable):
     key: str = ""
     details: tuple[Detail, ...] = ()
     group: str = ""
+    cause: Source | None = None  # another line that brought the problem about (the set_ylim that clips)
 
 
 @model
@@ -85,6 +86,7 @@ class Finding(Serialisable):
     accepted: str | None = None  # the reason, when an allow comment or accepted-findings entry covers it
     accepted_by: str | None = None  # "comment" (inline allow) or "file" (accepted-findings entry)
     instances: tuple[Instance, ...] = ()  # every occurrence this one finding stands for, worst first
+    cause_line: int | None = None  # a line of the same file that brought it about; an allow comment there counts
 
     def sort_key(self) -> tuple[str, int, str, str]:
         return (self.path, self.line or 0, self.rule, self.message)

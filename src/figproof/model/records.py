@@ -371,6 +371,7 @@ class Axis(Serialisable):
     ticks: tuple[tuple[float, str], ...] = ()  # major tick positions with their labels, as drawn
     autoscaled: bool = True  # False when the script set the limits itself (set_xlim, set_ylim, seaborn's grids)
     shared: bool = False  # the limits are shared with a sibling axes (sharex/sharey)
+    limit_source: Source | None = None  # the user's line that last set these view limits
 
 
 @model

@@ -2,7 +2,9 @@
 
 An inline comment ``# figproof: allow <rule-id> -- <reason>`` accepts the
 finding of that rule on the same line, or on the next line when the comment
-stands on a line of its own.  Several ids may be given, separated by commas.
+stands on a line of its own; the line that caused a finding (the ``set_ylim``
+that clips points) counts as well as the line that drew the marks.  A comment
+that accepts no finding is stale, and the check says so in a note.  Several ids may be given, separated by commas.
 The reason is required: it is shown in the report.
 
 The accepted-findings file (JSON, default ``.figproof-accepted.json``) lets an
@@ -192,14 +194,37 @@ def _inline_allow(f: Finding, allow_by_path: Mapping[str, Mapping[int, list[Allo
     if f.line is None:
         return None
     allows = allow_by_path.get(allow_key(f.path, f.cell), {})
-    same = allows.get(f.line, [])
+    # The finding's own line, then the line that caused it (the set_ylim that clips the points).
     # A comment on the line above counts only when it stands alone: a trailing comment there
     # belongs to that line's own code.
-    above = [a for a in allows.get(f.line - 1, []) if a.own_line]
-    for a in (*same, *above):
-        if a.rule == f.rule:
-            return a
+    for line in (f.line, f.cause_line):
+        if line is None:
+            continue
+        above = [a for a in allows.get(line - 1, []) if a.own_line]
+        for a in (*allows.get(line, []), *above):
+            if a.rule == f.rule:
+                return a
     return None
+
+
+def unused_allows(findings: Iterable[Finding], allow_by_path: Mapping[str, Mapping[int, list[Allow]]],
+                  skip_rules: Collection[str] = ()) -> list[tuple[str, Allow]]:
+    """Allow comments that accepted none of ``findings`` (marked by :func:`apply_acceptance`): stale ones.
+
+    Returns (allow key, allow) pairs in file and line order; rules in ``skip_rules`` (switched off) are left out.
+    """
+    used = set()
+    for f in findings:
+        if f.accepted_by == "comment":
+            allow = _inline_allow(f, allow_by_path)
+            if allow is not None:
+                used.add((allow_key(f.path, f.cell), allow.line, allow.rule))
+    out = []
+    for key in sorted(allow_by_path):
+        for line in sorted(allow_by_path[key]):
+            out += [(key, a) for a in allow_by_path[key][line]
+                    if (key, a.line, a.rule) not in used and a.rule not in skip_rules]
+    return out
 
 
 # --------------------------------------------------------------------------
@@ -363,5 +388,6 @@ __all__ = [
     "load_accepted",
     "notebook_allow_comments",
     "parse_allow_comments",
+    "unused_allows",
     "write_accepted",
 ]

@@ -73,6 +73,8 @@ def _finding(r: Rule, hit: Hit, *, fallback: Source, figure: str | None, severit
         help=r.summary,
         fingerprint=fingerprint(r.fingerprint_id, src.path, figure, hit.axes, hit.key or hit.message),
         instances=_instances(hit, fallback, figure),
+        cause_line=hit.cause.line if hit.cause is not None and (hit.cause.path, hit.cause.cell) == (src.path, src.cell)
+        else None,
     )
 
 

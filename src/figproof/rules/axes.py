@@ -357,8 +357,10 @@ def axis_clips_data(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
                 x_only = not (cut & (sy != 0)).any()
                 if x_only and all(fam.monotonic_x[m] for m in cut_marks):
                     severity, confidence = "warning", "possible"
+            (name, code), _ = ranked[0]
+            cause = (ax.x if name == "x" else ax.y).limit_source if code != _UNSHOWN else None
             yield Hit(message=message, source=fam.sources[first], axes=ax.index, severity=severity,
-                      confidence=confidence, key=f"{fam.plural}")
+                      confidence=confidence, key=f"{fam.plural}", cause=cause)
 
 
 # --------------------------------------------------------------------------
