@@ -218,12 +218,15 @@ def test_orphan_fires_once_at_the_file() -> None:
     first = run(path="a.py", events=(save("figures/a.png", script="a.py"),))
     second = run(path="b.py", events=(FileEvent(action="read", path="figures/photo.png", sha256="1",
                                                 source=src(2, "b.py")),))
-    inventory = Inventory(figure_files=("figures/old.png", "figures/a.png", "figures/photo.png"))
+    inventory = Inventory(figure_files=("figures/old.png", "figures/a.png", "figures/photo.png"), is_git=True)
     context = ctx(first, second, inventory=inventory)
     assert hits(reproduce.figure_orphan, second, context) == []
     found = hits(reproduce.figure_orphan, first, context)
     assert [h.message for h in found] == ["figures/old.png is committed but no script wrote it in this run"]
     assert found[0].source == Source(path="figures/old.png")
+    # outside git nothing is committed: the message says the file is in the repo
+    plain = hits(reproduce.figure_orphan, first, ctx(first, second, inventory=Inventory(figure_files=("figures/old.png",))))
+    assert [h.message for h in plain] == ["figures/old.png is in the repo but no script wrote it in this run"]
 
 
 def test_orphan_with_failed_script_is_possible() -> None:

@@ -378,6 +378,7 @@ def figure_orphan(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator
     for known in context.unrun.values():
         used.update(known or ())
     unfinished = [r.path for r in context.runs if r.status != "ok"]
+    kept = "is committed" if context.inventory.is_git else "is in the repo"  # not a git repo: nothing is committed
     for path in sorted(set(context.inventory.figure_files)):
         if path in used or unknown:
             continue  # a script that did not run in this check may write it: judged only over the scripts that ran
@@ -386,11 +387,11 @@ def figure_orphan(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator
             continue  # a script that did not run saves a file of this name (maybe from another folder)
         if unfinished:
             scripts = f"{len(unfinished)} script" + ("s" if len(unfinished) != 1 else "")
-            yield Hit(message=f"{path} is committed but no script wrote it in this run; "
+            yield Hit(message=f"{path} {kept} but no script wrote it in this run; "
                               f"{scripts} did not finish and may write it",
                       source=Source(path=path), confidence="possible", key=path)
         else:
-            yield Hit(message=f"{path} is committed but no script wrote it in this run",
+            yield Hit(message=f"{path} {kept} but no script wrote it in this run",
                       source=Source(path=path), key=path)
 
 
