@@ -153,3 +153,24 @@ def test_the_markdown_names_the_scripts_that_did_not_run_and_what_was_not_judged
         "partial check: 1 of 2 figure scripts did not run (`plot_b.py`)",
         "1 committed figure that no script of this check wrote or read was not judged as orphan: a script that "
         "did not run may write it (`figproof merge` judges the shards of a check together)"]
+
+
+@pytest.mark.slow
+def test_two_scripts_writing_one_committed_file_are_one_finding_and_each_is_compared_on_its_own(
+        tmp_path: Path, warm_runner) -> None:
+    from figproof.pipeline import check
+
+    repo = tmp_path / "lab"
+    (repo / "figures").mkdir(parents=True)
+    for name, size in (("a", (6.4, 4.8)), ("b", (3.2, 2.4))):
+        (repo / f"plot_{name}.py").write_text(
+            f"import matplotlib.pyplot as plt\nfig, ax = plt.subplots(figsize={size})\nax.plot([1, 2], [3, 4])\n"
+            f"fig.savefig('figures/shared.png', dpi=100)\n")
+    _committed(repo / "figures" / "shared.png")  # 64×48 px: neither script draws that
+    result = check(repo, runner=warm_runner).result
+    drift = sorted(f.message for f in result.findings if f.rule == "figure-drift")
+    assert drift == [
+        "figures/shared.png is 64×48 px but plot_a.py now draws it at 640×480 px",
+        "figures/shared.png is 64×48 px but plot_b.py now draws it at 320×240 px",
+        "figures/shared.png is written by 2 scripts (plot_a.py, plot_b.py); the last to run leaves its version, "
+        "and each is compared with the committed file on its own"]

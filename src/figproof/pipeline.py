@@ -13,7 +13,7 @@ from dataclasses import dataclass, replace
 from pathlib import Path, PurePosixPath
 
 from figproof import __version__, rules
-from figproof.compare.runs import committed_vs_regenerated, first_vs_second, notebook_outputs
+from figproof.compare.runs import committed_vs_regenerated, first_vs_second, notebook_outputs, other_writers
 from figproof.config import Config, load_config
 from figproof.discover.gitrepo import changed_since
 from figproof.discover.inventory import choose_working_dir, discover
@@ -269,7 +269,7 @@ def build_context(config: Config, inventory: Inventory, runs: tuple[ScriptRun, .
         comparisons=committed_vs_regenerated(runs, config.root, artifacts, tolerance),
         notebook_comparisons=notebook_outputs(runs, config.root, artifacts, tolerance),
         second_runs=second_runs, rerun_comparisons=reruns, running_version=matplotlib_version(),
-        unrun=unrun or {})
+        unrun=unrun or {}, other_writers=other_writers(runs, config.root, artifacts, tolerance))
 
 
 @functools.cache

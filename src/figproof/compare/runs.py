@@ -47,6 +47,29 @@ def committed_vs_regenerated(runs: Sequence[ScriptRun], root: Path, artifacts: P
     return out
 
 
+def other_writers(runs: Sequence[ScriptRun], root: Path, artifacts: Path,
+                  tolerance: float) -> dict[str, dict[str, OutputComparison]]:
+    """For a committed file that several scripts write: each later writer's own file against the committed one.
+
+    Keyed by script, then path (the first writer's comparison is in :func:`committed_vs_regenerated`).
+    """
+    diffs = artifacts / "diffs"
+    first: dict[str, str] = {}
+    out: dict[str, dict[str, OutputComparison]] = {}
+    for run in runs:
+        regenerated = artifact_folder(artifacts, run.path) / "regenerated"
+        for path in saved_outputs(run):
+            writer = first.setdefault(path, run.path)
+            committed = root / path
+            if writer == run.path or not committed.is_file():
+                continue
+            diffs.mkdir(parents=True, exist_ok=True)
+            name = run.path.replace("/", "__") + "--" + _diff_name(path)
+            out.setdefault(run.path, {})[path] = compare_output(committed, regenerated / path, tolerance=tolerance,
+                                                                path=path, shifts=True, diff_to=diffs / name)
+    return out
+
+
 def notebook_outputs(runs: Sequence[ScriptRun], root: Path, artifacts: Path,
                      tolerance: float) -> dict[str, tuple[OutputComparison, ...]]:
     """Stored ``image/png`` outputs of each notebook cell vs the figures that cell drew now, in order."""

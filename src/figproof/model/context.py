@@ -87,6 +87,8 @@ class RunContext:
     rerun_comparisons: Mapping[str, tuple[OutputComparison, ...]] = field(default_factory=_empty_mapping)
     running_version: str = ""
     unrun: Mapping[str, tuple[str, ...] | None] = field(default_factory=_empty_mapping)
+    # a committed file several scripts write: each later writer's own comparison, by script then path
+    other_writers: Mapping[str, Mapping[str, OutputComparison]] = field(default_factory=_empty_mapping)
 
     def written_by(self) -> dict[str, tuple[str, ...]]:
         """Repo-relative files each run saved or wrote, keyed by file, scripts in execution order."""

@@ -63,6 +63,11 @@ def _saves(run: ScriptRun) -> dict[str, list[FileEvent]]:
     return out
 
 
+def _saves_of(context: RunContext, script: str) -> dict[str, list[FileEvent]]:
+    run = next((r for r in context.runs if r.path == script), None)
+    return _saves(run) if run is not None else {}
+
+
 def _rms_text(c: OutputComparison) -> str:
     if c.rms is None:
         return ""
@@ -138,7 +143,9 @@ def _drift_hit(c: OutputComparison, run: ScriptRun, source: Source | None, runni
         by a shift of at most two pixels or an anti-aliasing change of the pixels around it, the content is
         the same and the finding is a note saying so; a changed title, bar, point or axis range still
         drifts. When the committed file records a different matplotlib version than the running one, the
-        finding says so: "environment differs" is not "figure is stale".
+        finding says so: "environment differs" is not "figure is stale". A committed file that two
+        scripts write is one finding naming both (the last to run leaves its version); each script's own
+        version is compared with the committed file.
     """,
     fix="""
         Open the diff image linked in the report. If the new drawing is right, regenerate and commit the
@@ -177,7 +184,12 @@ def figure_drift(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator[
             yield Hit(message=f"{run.path} saves {path} {len(saves)} times{at}; only the last save is compared "
                               f"with the committed file",
                       source=last, severity="note", confidence="certain", key=f"{path}:saved-twice")
-        c = context.comparisons.get(path)
+        writers = [w for w in context.written_by().get(path, ()) if path in _saves_of(context, w)]
+        if len(writers) > 1 and writers[0] == run.path and path in context.comparisons:
+            yield Hit(message=f"{path} is written by {len(writers)} scripts ({', '.join(writers)}); the last to run "
+                              f"leaves its version, and each is compared with the committed file on its own",
+                      source=last, severity="warning", confidence="certain", key=f"{path}:writers")
+        c = context.other_writers.get(run.path, {}).get(path) or context.comparisons.get(path)
         if c is None:
             continue
         hit = _drift_hit(c, run, last, context.running_version)
