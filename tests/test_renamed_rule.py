@@ -80,3 +80,12 @@ def test_explain_accepts_the_old_id(capsys: pytest.CaptureFixture[str]) -> None:
     out = capsys.readouterr().out
     assert out.startswith(f"Note: rule id '{OLD}' is now '{NEW}'")
     assert f"\n{NEW}: What the error bars show" in out
+
+
+def test_counts_in_the_verdict_line_agree_in_number() -> None:
+    from figproof.model.findings import CheckResult, Summary
+    from figproof.report.write import final_line
+
+    summary = Summary(scripts=1, figures=1, errors=1, warnings=0, notes=1, accepted=0, passed=False)
+    line = final_line(CheckResult(root=".", version="0", runs=(), findings=(), summary=summary))
+    assert line.endswith("FAILED (1 error, 0 warnings, 1 note, 0 accepted)")

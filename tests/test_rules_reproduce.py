@@ -262,7 +262,7 @@ def test_unseeded_jitter_is_named() -> None:
     assert len(found) == 1
     assert found[0].message == (
         "figures/strip.png differs between two runs of strip.py (410 of 307200 (0%) pixels differ, RMS 3.20 of 255); "
-        "the x positions of 3 of 4 (75%) points in axes 0 differ while their y values agree, "
+        "the x positions of 3 of 4 (75%) points in axes 1 differ while their y values agree, "
         "as an unseeded random jitter does")
 
 
@@ -316,7 +316,7 @@ def test_mark_differences_odd_input() -> None:
     b = figure(axes(points=[points([nan, 1.0], [nan, 2.0])]))
     assert reproduce.mark_differences(a, b) == []  # NaN in the same place is the same
     c = figure(axes(points=[points([1.0], [2.0])]))
-    assert reproduce.mark_differences(a, c) == ["a different number of points in axes 0"]
+    assert reproduce.mark_differences(a, c) == ["a different number of points in axes 1"]
     assert reproduce.mark_differences(figure(), figure(axes())) == ["0 axes in one run and 1 in the other"]
 
 

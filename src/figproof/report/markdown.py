@@ -129,7 +129,7 @@ def render(result: CheckResult, *, images: Mapping[str, str] | None = None, timi
     else:
         lines += ["No open findings.", ""]
     if accepted:
-        lines += [f"<details><summary>{len(accepted)} accepted finding(s)</summary>", ""]
+        lines += [f"<details><summary>{len(accepted)} accepted finding{'s' * (len(accepted) != 1)}</summary>", ""]
         lines += ["| where | rule | reason |", "|---|---|---|"]
         lines += [f"| `{_cell(where(f))}` | {f.rule} | {_cell(f.accepted or '')} |" for f in accepted]
         lines += ["", "</details>", ""]

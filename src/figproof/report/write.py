@@ -220,8 +220,9 @@ def use_colour(stream: TextIO) -> bool:
 def final_line(result: CheckResult, cached: int = 0) -> str:
     """The one-line verdict printed to stderr after the summary."""
     s = result.summary
-    text = (f"figproof: {'passed' if s.passed else 'FAILED'} ({s.errors} errors, {s.warnings} warnings, "
-            f"{s.notes} notes, {s.accepted} accepted)")
+    counts = ", ".join(f"{n} {word}{'s' * (n != 1)}" for n, word in
+                       ((s.errors, "error"), (s.warnings, "warning"), (s.notes, "note")))
+    text = f"figproof: {'passed' if s.passed else 'FAILED'} ({counts}, {s.accepted} accepted)"
     if cached:
         text += f"; {cached} of {s.scripts} script results from the cache"
     if use_colour(sys.stderr):

@@ -433,7 +433,7 @@ def mark_differences(first: FigureModel, second: FigureModel) -> list[str]:
     if len(first.axes) != len(second.axes):
         return [f"{len(first.axes)} axes in one run and {len(second.axes)} in the other"]
     for ax1, ax2 in zip(first.axes, second.axes, strict=True):
-        where = f"axes {ax1.index}"
+        where = f"axes {ax1.index + 1}"  # axes count from 1 in messages, as everywhere
         if len(ax1.points) != len(ax2.points):
             found.append(f"a different number of point sets in {where}")
         for p1, p2 in zip(ax1.points, ax2.points, strict=False):
