@@ -171,7 +171,7 @@ def colormap_not_uniform(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
 _SERIES_KNOBS = (
     Knob(name="palette_max_colors", default=20.0, minimum=0.0,
          help="a colour map with at most this many colours, not ordered in lightness, counts as a palette"),
-    Knob(name="max_colors", default=60.0, minimum=2.0,
+    Knob(name="max_colors", default=20.0, minimum=2.0,
          help="an artist with more distinct colours than this encodes a continuous variable and is skipped"),
 )
 

@@ -30,6 +30,7 @@ from figproof.rules._observations import (
     shown,
     where,
 )
+from figproof.rules.bars import bars_for_continuous
 from figproof.rules.base import Knob, Knobs, pct, rule
 from figproof.science.dip import dip_test
 
@@ -370,13 +371,16 @@ def _positions(ax: Axes) -> list[float]:
 def summary_hides_small_n(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
     """Boxes, violins or bars that summarise small groups without drawing their points."""
     small, note_n, share = int(knobs["small_n"]), int(knobs["note_n"]), float(knobs["shown_share"])
+    # bars that bars-for-continuous reports are one problem with one fix (draw the observations):
+    # their small groups are not reported a second time
+    summarising = {h.axes for h in bars_for_continuous.check(figure, bars_for_continuous.defaults())}
     for ax in figure.axes:
         if not rectilinear(ax):
             continue
         half = half_width(_positions(ax))
         found: dict[tuple[str, Severity, Confidence], list[tuple[_Summary, int, Confidence]]] = {}
         for s in _summaries(figure, ax):
-            if s.n is None or s.n <= 0 or s.n >= note_n:
+            if s.n is None or s.n <= 0 or s.n >= note_n or (s.kind == "bar" and ax.index in summarising):
                 continue
             drawn = shown(ax, s.values, s.n, s.position, half, s.vertical, s.fliers)
             if drawn >= share * s.n:

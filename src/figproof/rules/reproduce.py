@@ -95,6 +95,13 @@ def _drift_hit(c: OutputComparison, run: ScriptRun, source: Source | None, runni
     key = f"{c.path}#{c.cell}.{c.output}" if c.cell is not None else c.path
     if c.status == "drift":
         detail = _rms_text(c) or "its content differs after dropping dates and producer fields"
+        if env and c.kind == "vector":
+            # another matplotlib writes the same figure as other PDF/SVG bytes: no telling a changed figure
+            # from a changed writer without rasterising both
+            return Hit(message=f"{what} was written by matplotlib {made_with} and this run used {now}, which writes "
+                               f"vector files differently, so figproof cannot tell whether the figure changed; "
+                               f"regenerate it to compare",
+                       source=source, severity="note", confidence="possible", key=f"{key}:environment")
         if env:
             return Hit(message=f"{what} differs from what {run.path} draws now ({detail}){env_text}",
                        source=source, severity="warning", confidence="possible", key=f"{key}:environment")
@@ -389,7 +396,11 @@ def figure_orphan(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator
     known_names = {PurePosixPath(p).name for known in context.unrun.values() for p in known or ()}
     for known in context.unrun.values():
         used.update(known or ())
-    unfinished = [r.path for r in context.runs if r.status != "ok"]
+    if any(r.status != "ok" for r in context.runs):
+        return  # a script that did not finish may write them: its failure is the finding, once
+    # only folders the scripts save figures into: images elsewhere (photos in data/, figures drawn with
+    # other tools) are not outputs these scripts owe
+    folders = {str(PurePosixPath(p).parent) for p in context.written_by()}
     kept = "is committed" if context.inventory.is_git else "is in the repo"  # not a git repo: nothing is committed
     for path in sorted(set(context.inventory.figure_files)):
         if path in used or unknown:
@@ -397,14 +408,9 @@ def figure_orphan(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator
         name = PurePosixPath(path)
         if name.name in known_names or name.stem in known_names:
             continue  # a script that did not run saves a file of this name (maybe from another folder)
-        if unfinished:
-            scripts = f"{len(unfinished)} script" + ("s" if len(unfinished) != 1 else "")
-            yield Hit(message=f"{path} {kept} but no script wrote it in this run; "
-                              f"{scripts} did not finish and may write it",
-                      source=Source(path=path), confidence="possible", key=path)
-        else:
-            yield Hit(message=f"{path} {kept} but no script wrote it in this run",
-                      source=Source(path=path), key=path)
+        if str(name.parent) not in folders:
+            continue
+        yield Hit(message=f"{path} {kept} but no script wrote it in this run", source=Source(path=path), key=path)
 
 
 # --------------------------------------------------------------------------
