@@ -436,3 +436,13 @@ def test_empty_point_sets_have_no_contrast_to_judge() -> None:
     assert list(colour.low_contrast.check(fig, colour.low_contrast.defaults())) == []
     drawn = figure(axes(points=[points([0.2, 0.5], [0.3, 0.6], color=pale)]))
     assert len(list(colour.low_contrast.check(drawn, colour.low_contrast.defaults()))) == 1
+
+
+def test_default_orange_passes_unless_strict_wcag() -> None:
+    # tab:orange (#ff7f0e) on white is about 2.53:1 (WCAG 2.1 relative luminance): below WCAG's 3:1 for
+    # graphical objects, above the 1.8:1 that figproof warns at by default (common practice)
+    orange = line([0, 1], [0, 1], color=hexrgba("#ff7f0e"), label="control")
+    assert run(colour.low_contrast, figure(axes(lines=[orange]))) == []
+    strict = {**colour.low_contrast.defaults(), "strict_wcag": 1.0}
+    (hit,) = colour.low_contrast.check(figure(axes(lines=[orange])), strict)
+    assert "2.53:1, below 3:1" in hit.message

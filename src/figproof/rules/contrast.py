@@ -17,9 +17,20 @@ import numpy as np
 
 from figproof.model.findings import Detail, Hit
 from figproof.model.records import Axes, FigureModel, PointSet, Source, Text
-from figproof.rules._series import axes_background, figure_background, opaque, public_label, visible_colors
+from figproof.rules._series import (
+    axes_background,
+    distinct_rows,
+    figure_background,
+    looks_sequential,
+    opaque,
+    public_label,
+    visible_colors,
+)
 from figproof.rules.base import Knob, Knobs, counted, rule
 from figproof.science import colour as cs
+
+WCAG_GRAPHICS = 3.0  # WCAG 2.1 SC 1.4.11: graphical objects need 3:1 against adjacent colours
+DENSITY_ALPHA = 0.3  # markers this see-through are drawn faint on purpose (as points-hidden's density_alpha)
 
 _BOLD = {"bold", "heavy", "extra bold", "extrabold", "ultrabold", "black"}
 
@@ -64,8 +75,8 @@ def _colour_words(hex_: str) -> str:
              help="lowest WCAG contrast ratio for normal text"),
         Knob(name="large_text_ratio", default=3.0, minimum=1.0, maximum=21.0,
              help="lowest WCAG contrast ratio for large text"),
-        Knob(name="mark_ratio", default=3.0, minimum=1.0, maximum=21.0,
-             help="lowest WCAG contrast ratio for thin lines and small markers; a warning"),
+        Knob(name="mark_ratio", default=1.8, minimum=1.0, maximum=21.0,
+             help="lowest contrast ratio for thin lines and small markers; a warning (WCAG 2.1 asks 3)"),
         Knob(name="area_ratio", default=1.5, minimum=1.0, maximum=21.0,
              help="lowest contrast ratio for large filled marks (bars, areas, big markers, thick lines); a warning"),
         Knob(name="large_mark_size", default=10.0, minimum=0.0,
@@ -73,7 +84,7 @@ def _colour_words(hex_: str) -> str:
         Knob(name="thick_line_width", default=4.0, minimum=0.0,
              help="line width (pt) from which a line counts as a large filled mark"),
         Knob(name="strict_wcag", default=0.0, minimum=0.0, maximum=1.0,
-             help="1: judge every mark at mark_ratio against the axes face, as WCAG 2.1 states it"),
+             help="1: judge every mark at WCAG 2.1's 3:1 against the axes face, as WCAG states it"),
         Knob(name="large_size", default=18.0, minimum=0.0, help="font size (pt) from which text is large"),
         Knob(name="large_bold_size", default=14.0, minimum=0.0,
              help="font size (pt) from which bold text is large"),
@@ -81,12 +92,15 @@ def _colour_words(hex_: str) -> str:
     why="""
         Pale text and marks vanish on projectors, in print and for readers with low vision. WCAG 2.1 sets
         the contrast ratio (L1 + 0.05) / (L2 + 0.05) between the relative luminances of foreground and
-        background: at least 4.5:1 for normal text, 3:1 for large text (18 pt, or 14 pt bold), and 3:1
-        for graphical objects needed to understand the content, such as the thin lines and small markers
-        of a plot. Large filled shapes are seen at much lower contrast than thin ones (the threshold
-        contrast of a target falls as it grows), so bars, filled areas, big markers and thick lines are
-        held to a lower ratio, 1.5:1 by default: the default matplotlib and seaborn palettes pass on
-        white, pale pastels do not. figproof measures each text against what is really beneath it (its
+        background: at least 4.5:1 for normal text and 3:1 for large text (18 pt, or 14 pt bold); text
+        is held to these. For graphical objects WCAG asks 3:1, which the orange, green and olive of
+        matplotlib's and seaborn's default palettes miss on white although readers see them plainly; so
+        figproof warns about thin lines and small markers below 1.8:1 and about large filled shapes
+        (bars, areas, big markers, thick lines: the threshold contrast of a target falls as it grows)
+        below 1.5:1. Pale yellows, light grays and pastels fail; the default palettes pass.
+        `strict_wcag = 1` applies WCAG's 3:1 to every mark. Stacked bar segments (they sit against
+        each other), the pale steps of a colour ramp and see-through markers are designs, not faults.
+        figproof measures each text against what is really beneath it (its
         own box, the legend frame, the image or mesh cell, bar or violin body under it, the axes face
         inside the axes, the figure face outside) and each marker against what it sits on, after
         blending transparency. Panels with their axis turned off are pictures, not plots, and their
@@ -103,8 +117,8 @@ def _colour_words(hex_: str) -> str:
         "success criteria 1.4.3 (contrast, minimum) and 1.4.11 (non-text contrast).",
         "Blackwell (1946), Contrast thresholds of the human eye, J. Opt. Soc. Am. 36(11): the threshold "
         "contrast falls as the target grows (from memory).",
-        "Large-mark ratio 1.5:1, large marker 10 pt, thick line 4 pt: common practice (the lowest ratios of "
-        "matplotlib's tab10 and seaborn's deep palette on white are about 2.0:1).",
+        "Mark ratio 1.8:1, large-mark ratio 1.5:1, large marker 10 pt, thick line 4 pt: common practice (the "
+        "lowest ratios of matplotlib's tab10 and seaborn's deep and muted palettes on white are 2.0, 1.95 and 1.9).",
     ),
     bad="""
         import matplotlib
@@ -185,7 +199,8 @@ def _marks(ax: Axes, bg: np.ndarray, knobs: Knobs) -> Iterator[_Mark]:
     strict = knobs["strict_wcag"] >= 0.5
     small, big = float(knobs["mark_ratio"]), float(knobs["area_ratio"])
     if strict:
-        big = small
+        small = big = WCAG_GRAPHICS
+    stacked = len(ax.bars) > 1 and any(np.any(np.asarray(b.bottoms, float) != 0) for b in ax.bars)
 
     def level(large: bool) -> float:
         return big if large else small
@@ -203,6 +218,9 @@ def _marks(ax: Axes, bg: np.ndarray, knobs: Knobs) -> Iterator[_Mark]:
         faces = np.asarray(ps.facecolors, float)
         if faces.size == 0 and np.asarray(ps.edgecolors).size == 0:
             continue
+        if not strict and faces.ndim == 2 and faces.shape[0] and faces.shape[1] == 4 \
+                and float(np.nanmax(faces[:, 3])) <= DENSITY_ALPHA:
+            continue  # see-through markers show density by design; their faintness is points-hidden's business
         sizes = np.asarray(ps.sizes, float)
         large = bool(sizes.size and np.sqrt(np.nanmin(sizes)) >= knobs["large_mark_size"])
         faces = visible_colors(faces if faces.size else ps.edgecolors, ps.edgecolors)
@@ -215,6 +233,9 @@ def _marks(ax: Axes, bg: np.ndarray, knobs: Knobs) -> Iterator[_Mark]:
         yield _Mark("markers", public_label(ps.label), faces, np.asarray(ps.edgecolors, float), under,
                     level(large), large, ps.source)
     for bs in ax.bars:
+        faces = np.asarray(bs.facecolors, float)
+        if not strict and (stacked or (faces.ndim == 2 and looks_sequential(distinct_rows(faces)[:, :3]))):
+            continue  # stacked segments sit against each other; the pale steps of a ramp are its design
         if np.asarray(bs.facecolors).size:
             yield _Mark("bars", public_label(bs.label), np.asarray(bs.facecolors, float),
                         np.asarray(bs.edgecolors, float), bg[None, :3], level(True), True, bs.source)
