@@ -267,7 +267,12 @@ def axes_series(ax: Axes, *, palette_max_colors: float, max_colors: float) -> li
         for k, row in enumerate(art.colors):
             name = art.label if art.colors.shape[0] == 1 else (f"{art.label} {k + 1}" if art.label else "")
             found.append(Series(tuple(float(v) for v in row), name, art.what, art.source))  # type: ignore[arg-type]
-    # several artists whose colours step in lightness (lines drawn from a sequential map) are a map too
+    # several artists of one kind whose colours step along a ramp (lines drawn from a sequential map)
+    # are a map too
+    for what in {s.what for s in found}:
+        same = np.array([s.rgba[:3] for s in found if s.what == what])
+        if same.shape[0] >= 3 and looks_sequential(distinct_rows(np.c_[same, np.ones(len(same))])[:, :3]):
+            found = [s for s in found if s.what != what]
     colors = np.array([s.rgba[:3] for s in found]) if found else np.zeros((0, 3))
     if looks_sequential(distinct_rows(np.c_[colors, np.ones(len(colors))])[:, :3] if len(colors) else colors):
         return []

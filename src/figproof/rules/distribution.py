@@ -14,7 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from figproof.model.findings import Confidence, Hit, Severity
+from figproof.model.findings import Confidence, Detail, Hit, Severity
 from figproof.model.records import Axes, Box, ErrorBars, FigureModel, Source, Violin
 from figproof.rules._observations import (
     Group,
@@ -679,8 +679,19 @@ def errorbars_ambiguous(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
             continue
         recorded = recorded_groups(figure, ax.index)
         half = half_width(_positions(ax))
-        for k, eb in enumerate(ax.errorbars):
-            yield from _errorbar_hits(ax, k, eb, recorded, half, rtol, boot_rtol, small, share)
+        found = [h for k, eb in enumerate(ax.errorbars)
+                 for h in _errorbar_hits(ax, k, eb, recorded, half, rtol, boot_rtol, small, share)]
+        if len(found) == 1:
+            yield found[0]
+        elif found:
+            # one finding per axes: the error-bar sets of one plot are one caption to write
+            found.sort(key=lambda h: 0 if h.severity == "warning" else 1)
+            head = found[0]
+            yield Hit(message=f"{head.message}; and {len(found) - 1} more error-bar set"
+                              f"{'s' * (len(found) > 2)} in this axes",
+                      source=head.source, axes=ax.index, severity=head.severity, confidence=head.confidence,
+                      key="errorbars:axes", details=tuple(Detail(message=h.message, source=h.source, axes=ax.index)
+                                                          for h in found))
 
 
 def _errorbar_hits(ax: Axes, k: int, eb: ErrorBars, recorded: list[Group], half: float, rtol: float, boot_rtol: float,
