@@ -33,6 +33,7 @@ class ExitCode(enum.IntEnum):
     USAGE = 2  # bad command line, config or path
     INTERNAL = 3  # a bug in figproof: please report it with the traceback
     ENVIRONMENT = 4  # the machine lacks room, a writable temp folder, open files or processes
+    DEPOSIT_REFUSED = 5  # a deposit could not be unpacked: a refused member, a bomb, an unreadable archive
     INTERRUPTED = 130  # stopped by SIGINT (Ctrl-C): 128 + 2, as shells report it
     TERMINATED = 143  # stopped by SIGTERM (a cancelled CI job, `timeout`): 128 + 15
 
@@ -52,7 +53,11 @@ def build_parser() -> argparse.ArgumentParser:
 
     check = sub.add_parser("check", help="check a repo (default: the current folder)")
     check.add_argument("paths", nargs="*", metavar="PATH",
-                       help="repo folder to check (default: .); with --changed-files, the changed files")
+                       help="repo folder to check (default: .); a deposit: an archive (.zip, .tar.gz, .tgz, ...) "
+                            "or a folder; with --changed-files, the changed files")
+    check.add_argument("--deposit", action="store_true",
+                       help="check PATH as a deposit (every file counts as committed, git is not asked); "
+                            "implied for archives")
     _report_flags(check)
     _run_flags(check)
 
@@ -121,6 +126,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     if jobs is not None and jobs < 1:  # as `jobs` in the config: a whole number of scripts at once
         print(f"figproof: --jobs must be a positive whole number (got {jobs})", file=sys.stderr)
         return ExitCode.USAGE
+    from figproof.deposit.unpack import DepositError
     from figproof.interrupt import Interrupted, stop_on_signals
     from figproof.report.write import OutputError
     from figproof.run.resources import EnvironmentProblem
@@ -139,6 +145,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     except EnvironmentProblem as exc:
         print(f"figproof: {exc}", file=sys.stderr)
         return ExitCode.ENVIRONMENT
+    except DepositError as exc:
+        print(f"figproof: {exc}", file=sys.stderr)
+        return ExitCode.DEPOSIT_REFUSED
     except Exception:  # noqa: BLE001 - the one place that turns a figproof bug into exit code 3
         traceback.print_exc()
         print("figproof: internal error (a bug in figproof); please report it with the traceback above",
@@ -273,6 +282,16 @@ def _inside(root: Path, p: Path) -> str | None:
 
 
 def cmd_check(args: argparse.Namespace) -> int:
+    from figproof.deposit import command as deposit
+
+    paths = tuple(Path(p) for p in args.paths)
+    if not args.changed_files and deposit.wanted(paths, args.deposit):
+        request = deposit.DepositRun(paths=paths, reports=report_request(args), jobs=args.jobs, twice=args.twice,
+                                     quiet=args.quiet)
+        try:
+            return deposit.run(request, _progress(args))
+        except _one_line_errors() as exc:
+            raise UsageError(str(exc)) from None
     if args.changed_files:
         from figproof.config import ConfigError, load_config
         from figproof.rules import by_id

@@ -53,6 +53,7 @@ class CheckOptions:
     cache: bool = False  # reuse results of scripts whose script, inputs and environment did not change
     skip_copy: tuple[str, ...] = ()
     renders: bool = True  # keep each figure's pixels: needed for image panels and --twice, costs a full draw
+    deposit: bool = False  # a deposit, not a repo: the config must lie inside it, and every file counts as committed
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -132,7 +133,9 @@ def check(path: Path, options: CheckOptions | None = None, *, runner: Runner | N
     """
     options = options or CheckOptions()
     config = load_config(path, rules=rules.by_id())
-    inventory = discover(config)
+    if options.deposit and config.root != path.resolve():
+        config = Config(root=path.resolve())  # a config above an unpacked deposit is not the deposit's
+    inventory = discover(config, use_git=not options.deposit)
     sweep_stale()  # what killed checks left in the temp folder (only folders whose owner is gone)
     artifacts = options.artifacts or make_scratch("figproof-run-")
     try:

@@ -336,16 +336,18 @@ def _figure_file(config: Config, rel: str) -> bool:
     return rel.split("/", 1)[0] not in NON_FIGURE_DIRS
 
 
-def iter_files(root: Path) -> tuple[list[str], bool]:
+def iter_files(root: Path, *, use_git: bool = True) -> tuple[list[str], bool]:
     """All candidate files under ``root`` (repo-relative POSIX, sorted) and whether git listed them."""
-    tracked = gitrepo.tracked_files(root)
+    tracked = gitrepo.tracked_files(root) if use_git else None
     if tracked is None:
         return _walk(root), False
     return tracked, True
 
 
-def discover(config: Config) -> Inventory:
+def discover(config: Config, *, use_git: bool = True) -> Inventory:
     """List the figure scripts, data files and committed figure files of ``config.root``.
+
+    With ``use_git=False`` (a deposit) every file under the root counts as committed, even inside a git work tree.
 
     Returns
     -------
@@ -360,7 +362,7 @@ def discover(config: Config) -> Inventory:
         When an explicit include pattern matches no script, or an ``order`` entry is not a file.
     """
     root = config.root
-    files, is_git = iter_files(root)
+    files, is_git = iter_files(root, use_git=use_git)
     skip = _Skipper(root, files)
     scripts, excluded = _scripts(config, files, skip)
     own = _own_files(config)

@@ -1,0 +1,1 @@
+"""Deposits: an archive or a plain folder deposited with a manuscript, checked as a data editor would."""
