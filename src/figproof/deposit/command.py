@@ -14,7 +14,7 @@ from pathlib import Path
 
 from figproof.deposit.unpack import DepositError, deposit_name, is_archive, opened
 from figproof.model.records import ScriptRun
-from figproof.pipeline import CheckOptions, Checked, check
+from figproof.pipeline import Checked, CheckOptions, check
 from figproof.report.write import ReportRequest, final_line, write_reports
 
 # exit codes, as figproof.cli.ExitCode names them (this module may not import the command line)
