@@ -1,0 +1,389 @@
+"""Match the manuscript's figures (as submitted) to the figures the deposit's scripts draw now.
+
+A submitted figure rarely has the pixels a script writes: the journal's system rescales it, recompresses it as
+JPEG, adds or trims margins, converts its colour profile, or puts it on a PDF page.  So both images are reduced
+to what survives all that before they are compared: composited over white, converted to grey (ITU-R BT.601 luma,
+Pillow's ``L`` mode), trimmed of uniform margins, scaled to a common size, and compared with the structural
+similarity index (SSIM; Wang, Bovik, Sheikh and Simoncelli 2004, "Image quality assessment: from error visibility
+to structural similarity", IEEE Trans. Image Processing 13(4):600–612) with its published constants: an 11-tap
+Gaussian window of σ = 1.5, K1 = 0.01, K2 = 0.03.
+
+SSIM is averaged over the windows that hold ink (a figure is mostly white paper, where any two figures agree),
+and the two pictures are aligned by cutting a few pixels off the sides where one's ink reaches its edge.
+
+Each reference is matched to the regenerated figure it resembles most.  Its verdict: ``reproduced`` at a
+similarity of at least ``REPRODUCED`` (0.80); ``differs`` when it is below that but at least ``RESEMBLES`` (0.30)
+and the two are each other's best match; else ``not-found``.  Both thresholds are common practice, chosen on
+copies of one plot resized, cropped by 3 pixels, JPEG-compressed at quality 30 and set in margins (0.89 to 1.0)
+against other plots in the same style (0.19 to 0.33).  Telling "differs" from "not found" is a best guess; both
+mean the reference was not reproduced.  The comparison is in grey, so a change of colour alone that keeps the
+lightness is not seen.
+
+PDF pages are rendered with pypdfium2 (PDFium's Python binding), an optional extra: ``pip install figproof[pdf]``.
+"""
+
+from __future__ import annotations
+
+import io
+import itertools
+from collections.abc import Iterable, Iterator, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Literal
+
+import numpy as np
+from PIL import Image, ImageDraw, ImageOps, UnidentifiedImageError
+
+REFERENCE_SUFFIXES = (".png", ".tif", ".tiff", ".jpg", ".jpeg", ".pdf", ".gif", ".webp", ".bmp")
+SIDE = 128  # both images are scaled to SIDE × SIDE grey pixels before they are compared
+REPRODUCED = 0.80
+RESEMBLES = 0.30
+PDF_DPI = 100
+MAX_PIXELS = 80_000_000  # a reference larger than this is refused rather than decoded (a decompression bomb)
+MARGIN_TOLERANCE = 40  # grey levels: a row or column this close to the corner colour is margin (JPEG noise too)
+_INKED = 0.97  # a window whose local mean is below this (on white = 1) holds ink
+_CROPS = (0.005, 0.01, 0.02)  # shares of width or height cut from a side when aligning a cropped reference
+_SHORTLIST = 3  # regenerated figures per reference that the alignment search is tried on
+_SIGMA, _TRUNCATE = 1.5, 3.5  # 11-tap window: radius int(3.5 * 1.5 + 0.5) = 5
+_K1, _K2 = 0.01, 0.03
+
+Verdict = Literal["reproduced", "differs", "not-found"]
+
+
+class ReferenceError(Exception):
+    """A reference file that cannot be read; the message is one line naming it."""
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class Picture:
+    """One image to compare: a reference page or a regenerated figure, already normalised."""
+
+    label: str  # "fig2.tif", "figures.pdf page 3", "plots/fig1.py#1"
+    grey: np.ndarray  # SIDE × SIDE float64 in [0, 1]
+    shown: Image.Image  # the trimmed RGB image, for the change view
+    edges: tuple[bool, bool, bool, bool] = (False, False, False, False)  # ink reaches left, top, right, bottom
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class Match:
+    """A reference figure's verdict and the regenerated figure it resembles most."""
+
+    reference: str
+    verdict: Verdict
+    regenerated: str | None  # None when nothing was regenerated
+    similarity: float  # SSIM with that figure (0 when nothing was regenerated)
+
+
+# --------------------------------------------------------------------------- SSIM
+
+
+def ssim_map(a: np.ndarray, b: np.ndarray, data_range: float = 1.0) -> np.ndarray:
+    """The local SSIM index of two equal-shape grey images (Wang et al. 2004, Gaussian window σ = 1.5).
+
+    Local statistics use the population (not sample) covariance, as the paper does; the border where the
+    window leaves the image is cut off (5 pixels each side).
+    """
+    from scipy.ndimage import gaussian_filter
+
+    if a.shape != b.shape:
+        raise ValueError(f"images differ in shape: {a.shape} and {b.shape}")
+    x, y = a.astype(np.float64), b.astype(np.float64)
+
+    def blur(img: np.ndarray) -> np.ndarray:
+        return np.asarray(gaussian_filter(img, sigma=_SIGMA, truncate=_TRUNCATE, mode="reflect"))
+
+    mx, my = blur(x), blur(y)
+    vx = blur(x * x) - mx * mx
+    vy = blur(y * y) - my * my
+    cxy = blur(x * y) - mx * my
+    c1, c2 = (_K1 * data_range) ** 2, (_K2 * data_range) ** 2
+    index = ((2 * mx * my + c1) * (2 * cxy + c2)) / ((mx * mx + my * my + c1) * (vx + vy + c2))
+    pad = int(_TRUNCATE * _SIGMA + 0.5)
+    return index[pad:-pad, pad:-pad]
+
+
+def ssim(a: np.ndarray, b: np.ndarray, data_range: float = 1.0) -> float:
+    """Mean structural similarity of two equal-shape grey images (the paper's MSSIM)."""
+    return float(ssim_map(a, b, data_range).mean())
+
+
+def inked_ssim(a: np.ndarray, b: np.ndarray) -> float:
+    """Mean SSIM over the windows where either image has ink (grey images in [0, 1] on white).
+
+    A figure is mostly white paper, where any two figures agree; averaged over all windows, two different
+    plots in one style score 0.6 to 0.75, as high as a JPEG copy of the same plot.  Averaged over the inked
+    windows (local mean below 0.97 in either image) they fall below 0.35 while copies stay above 0.85.
+    """
+    from scipy.ndimage import gaussian_filter
+
+    index = ssim_map(a, b)
+    pad = int(_TRUNCATE * _SIGMA + 0.5)
+    ink = np.zeros(a.shape, dtype=bool)
+    for img in (a, b):
+        ink |= np.asarray(gaussian_filter(img.astype(np.float64), sigma=_SIGMA, truncate=_TRUNCATE)) < _INKED
+    ink = ink[pad:-pad, pad:-pad]
+    return float(index[ink].mean()) if ink.any() else 1.0
+
+
+def similarity(reference: Picture, regenerated: Picture, *, align: bool = True) -> float:
+    """The inked SSIM of two pictures; with ``align``, the best over small cuts of either picture.
+
+    A figure cut by a few pixels loses ink only on the sides where its ink reaches the edge of the image, so
+    the other picture is cut on those sides by the shares in ``_CROPS``, in every combination for up to two
+    sides and one side at a time (two rounds) for more.  Trimming cannot align such a cut on its own.
+    """
+    best = inked_ssim(reference.grey, regenerated.grey)
+    if not align:
+        return best
+    for fixed, moved, flip in ((reference, regenerated, False), (regenerated, reference, True)):
+
+        def score(cut: list[float], fixed: Picture = fixed, moved: Picture = moved, flip: bool = flip) -> float:
+            a, b = fixed.grey, _cropped(moved, cut)
+            return inked_ssim(b, a) if flip else inked_ssim(a, b)
+
+        for cut in _cuts([i for i, touches in enumerate(moved.edges) if touches]):
+            best = max(best, score(cut))
+        if best < REPRODUCED:
+            # JPEG noise can widen a trimmed box by a few pixels on any side: one side at a time, two rounds
+            cut = [0.0] * 4
+            for _ in range(2):
+                for side in range(4):
+                    for share in _CROPS:
+                        trial = list(cut)
+                        trial[side] = share
+                        value = score(trial)
+                        if value > best:
+                            best, cut = value, trial
+    return best
+
+
+def _cuts(sides: Sequence[int]) -> Iterator[list[float]]:
+    shares = (0.0, *_CROPS)
+    if not sides or len(sides) > 2:
+        # three or four sides (a figure filling its image): the same share on every side it reaches
+        for share in _CROPS if sides else ():
+            yield [share if i in sides else 0.0 for i in range(4)]
+        return
+    for combo in itertools.product(shares, repeat=len(sides)):
+        if any(combo):
+            cut = [0.0] * 4
+            for side, share in zip(sides, combo, strict=True):
+                cut[side] = share
+            yield cut
+
+
+def _cropped(p: Picture, shares: Sequence[float]) -> np.ndarray:
+    w, h = p.shown.size
+    left, top, right, bottom = (round(s * (w if i % 2 == 0 else h)) for i, s in enumerate(shares))
+    if w - left - right < 8 or h - top - bottom < 8:
+        return p.grey
+    return _grey(p.shown.crop((left, top, w - right, h - bottom)))
+
+
+# --------------------------------------------------------------------------- normalising
+
+
+def over_white(img: Image.Image) -> Image.Image:
+    """The image as RGB, transparent areas over white, palette and CMYK converted (the embedded profile dropped)."""
+    if img.mode in ("RGBA", "LA", "PA") or (img.mode == "P" and "transparency" in img.info):
+        rgba = img.convert("RGBA")
+        white = Image.new("RGBA", rgba.size, (255, 255, 255, 255))
+        return Image.alpha_composite(white, rgba).convert("RGB")
+    if img.mode in ("I;16", "I;16B", "I;16L", "I"):
+        arr = np.asarray(img, dtype=np.float64)
+        top = arr.max() or 1.0
+        return Image.fromarray(np.uint8(np.clip(arr / top * 255.0, 0, 255))).convert("RGB")
+    return img.convert("RGB")
+
+
+def trim(img: Image.Image, tolerance: int = MARGIN_TOLERANCE) -> tuple[Image.Image, tuple[bool, bool, bool, bool]]:
+    """The image without uniform margins (rows and columns within ``tolerance`` of the corner colour), and
+    whether ink reaches each edge of the image (left, top, right, bottom; within 2 pixels)."""
+    grey = np.asarray(img.convert("L"), dtype=np.int16)
+    corner = int(np.median([grey[0, 0], grey[0, -1], grey[-1, 0], grey[-1, -1]]))
+    ink = np.abs(grey - corner) > tolerance
+    rows, cols = np.flatnonzero(ink.any(axis=1)), np.flatnonzero(ink.any(axis=0))
+    if rows.size == 0 or cols.size == 0:
+        return img, (False, False, False, False)
+    h, w = grey.shape
+    edges = (bool(cols[0] <= 2), bool(rows[0] <= 2), bool(cols[-1] >= w - 3), bool(rows[-1] >= h - 3))
+    return img.crop((int(cols[0]), int(rows[0]), int(cols[-1]) + 1, int(rows[-1]) + 1)), edges
+
+
+def normalise(img: Image.Image) -> tuple[np.ndarray, Image.Image, tuple[bool, bool, bool, bool]]:
+    """(SIDE × SIDE grey in [0, 1], trimmed RGB image, edges the ink reaches) for one picture."""
+    rgb, edges = trim(over_white(ImageOps.exif_transpose(img) or img))
+    return _grey(rgb), rgb, edges
+
+
+def _grey(rgb: Image.Image) -> np.ndarray:
+    grey = rgb.convert("L").resize((SIDE, SIDE), Image.Resampling.LANCZOS, reducing_gap=3.0)
+    return np.asarray(grey, dtype=np.float64) / 255.0
+
+
+def picture(label: str, img: Image.Image) -> Picture:
+    grey, shown, edges = normalise(img)
+    return Picture(label=label, grey=grey, shown=shown, edges=edges)
+
+
+# --------------------------------------------------------------------------- reading files
+
+
+def _open(path: Path) -> Image.Image:
+    try:
+        img = Image.open(path)  # reads the header only
+        if img.width * img.height > MAX_PIXELS:
+            raise ReferenceError(f"{path.name}: {img.width} x {img.height} pixels is more than figproof decodes "
+                                 f"({MAX_PIXELS:,}); export the figure at a lower resolution")
+        img.load()
+    except (UnidentifiedImageError, OSError, Image.DecompressionBombError, SyntaxError, ValueError) as exc:
+        raise ReferenceError(f"{path.name}: not a readable image ({_reason(exc)}); export the figure again") \
+            from None
+    return img
+
+
+def _reason(exc: BaseException) -> str:
+    return (str(exc).splitlines() or [type(exc).__name__])[0]
+
+
+def _frames(path: Path) -> list[tuple[str, Image.Image]]:
+    """Every page of an image file: one for most, each frame of a multi-page TIFF."""
+    img = _open(path)
+    count = getattr(img, "n_frames", 1)
+    if count <= 1 or path.suffix.lower() not in (".tif", ".tiff"):
+        return [(path.name, img)]
+    out = []
+    for i in range(count):
+        img.seek(i)
+        out.append((f"{path.name} page {i + 1}", img.copy()))
+    return out
+
+
+def pdf_pages(path: Path, dpi: int = PDF_DPI) -> list[tuple[str, Image.Image]]:
+    """Each page of a PDF rendered at ``dpi`` (pypdfium2); ReferenceError naming the extra when it is absent."""
+    try:
+        import pypdfium2 as pdfium
+    except ImportError:
+        raise ReferenceError(f"{path.name}: PDF references need the optional extra 'pdf' "
+                             f"(pip install 'figproof[pdf]'), or export the page as PNG") from None
+    try:
+        doc = pdfium.PdfDocument(str(path))
+    except (pdfium.PdfiumError, OSError) as exc:
+        raise ReferenceError(f"{path.name}: not a readable PDF ({_reason(exc)})") from None
+    try:
+        out = []
+        for i in range(len(doc)):
+            page = doc[i]
+            out.append((f"{path.name} page {i + 1}" if len(doc) > 1 else path.name,
+                        page.render(scale=dpi / 72).to_pil()))
+            page.close()
+        return out
+    finally:
+        doc.close()
+
+
+def reference_files(folder: Path) -> list[Path]:
+    """The reference figure files under ``folder`` (any depth, sorted; hidden files skipped)."""
+    return sorted(p for p in folder.rglob("*") if p.is_file() and p.suffix.lower() in REFERENCE_SUFFIXES
+                  and not any(part.startswith(".") for part in p.relative_to(folder).parts))
+
+
+def load_references(folder: Path) -> tuple[list[Picture], list[str]]:
+    """(normalised pictures of every reference page, one-line problems with files that could not be read)."""
+    pictures: list[Picture] = []
+    problems: list[str] = []
+    for path in reference_files(folder):
+        label = path.relative_to(folder).as_posix()
+        try:
+            pages = pdf_pages(path) if path.suffix.lower() == ".pdf" else _frames(path)
+        except ReferenceError as exc:
+            problems.append(str(exc))
+            continue
+        for name, img in pages:
+            pictures.append(picture(label + name[len(path.name):], img))
+    return pictures, problems
+
+
+def regenerated_picture(label: str, png: Path | bytes) -> Picture | None:
+    """A regenerated figure's render as a picture, or None when it cannot be decoded."""
+    try:
+        img = Image.open(io.BytesIO(png) if isinstance(png, bytes) else png)
+        img.load()
+    except (UnidentifiedImageError, OSError, Image.DecompressionBombError, SyntaxError, ValueError):
+        return None
+    return picture(label, img)
+
+
+# --------------------------------------------------------------------------- matching
+
+
+def verdict_for(score: float, mutual: bool = True) -> Verdict:
+    """The verdict for a reference whose best match scores ``score`` (``mutual``: it is that figure's best too)."""
+    if score >= REPRODUCED:
+        return "reproduced"
+    return "differs" if score >= RESEMBLES and mutual else "not-found"
+
+
+def match(references: Sequence[Picture], regenerated: Sequence[Picture]) -> list[Match]:
+    """Each reference with the regenerated figure it resembles most (ties: the first in order)."""
+    found: list[tuple[Picture, int | None, float]] = []
+    quick: dict[tuple[int, int], float] = {}
+    for r, ref in enumerate(references):
+        # a quick score for every pair, then the alignment search on the few most similar
+        for g, reg in enumerate(regenerated):
+            quick[r, g] = similarity(ref, reg, align=False)
+        order = sorted(range(len(regenerated)), key=lambda g: (-quick[r, g], g))
+        best: int | None = None
+        score = 0.0
+        for g in order[:_SHORTLIST]:
+            s = similarity(ref, regenerated[g])
+            if best is None or s > score:
+                best, score = g, s
+        found.append((ref, best, score))
+    out = []
+    for r, (ref, best, score) in enumerate(found):
+        if best is None:
+            out.append(Match(reference=ref.label, verdict="not-found", regenerated=None, similarity=0.0))
+            continue
+        mutual = all(quick[r, best] >= quick[other, best] for other in range(len(references)))
+        out.append(Match(reference=ref.label, verdict=verdict_for(score, mutual), regenerated=regenerated[best].label,
+                         similarity=round(score, 4)))
+    return out
+
+
+def matched_regenerated(matches: Iterable[Match]) -> dict[str, str]:
+    """Regenerated figure → the reference it reproduces or resembles (the most similar when several do)."""
+    best: dict[str, Match] = {}
+    for m in matches:
+        if m.regenerated is None or m.verdict == "not-found":
+            continue
+        if m.regenerated not in best or m.similarity > best[m.regenerated].similarity:
+            best[m.regenerated] = m
+    return {reg: m.reference for reg, m in sorted(best.items())}
+
+
+# --------------------------------------------------------------------------- the change view
+
+
+def change_view(reference: Picture, regenerated: Picture, out: Path, side: int = 360) -> Path:
+    """Write reference | regenerated | difference, each trimmed and scaled to ``side`` px, as one PNG."""
+    a = reference.shown.convert("L").resize((side, side), Image.Resampling.LANCZOS)
+    b = regenerated.shown.convert("L").resize((side, side), Image.Resampling.LANCZOS)
+    diff = np.abs(np.asarray(a, dtype=np.int16) - np.asarray(b, dtype=np.int16))
+    # differences dark on white, amplified ×4 so a thin changed line shows
+    diff_img = Image.fromarray(np.uint8(255 - np.clip(diff * 4, 0, 255)))
+    gap, header = 8, 16
+    sheet = Image.new("RGB", (3 * side + 4 * gap, side + header + 2 * gap), (255, 255, 255))
+    draw = ImageDraw.Draw(sheet)
+    for i, (panel, title) in enumerate(((a, "as submitted"), (b, "regenerated"), (diff_img, "difference x4"))):
+        x = gap + i * (side + gap)
+        sheet.paste(panel.convert("RGB"), (x, header + gap))
+        draw.text((x, 2), title, fill=(0, 0, 0))
+    out.parent.mkdir(parents=True, exist_ok=True)
+    sheet.save(out, format="PNG")
+    return out
+
+
+__all__ = ["REFERENCE_SUFFIXES", "REPRODUCED", "RESEMBLES", "Match", "Picture", "ReferenceError", "change_view",
+           "load_references", "match", "matched_regenerated", "normalise", "pdf_pages", "picture",
+           "reference_files", "regenerated_picture", "similarity", "ssim", "ssim_map", "trim", "verdict_for"]
