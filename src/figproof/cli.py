@@ -56,8 +56,13 @@ def build_parser() -> argparse.ArgumentParser:
                        help="repo folder to check (default: .); a deposit: an archive (.zip, .tar.gz, .tgz, ...) "
                             "or a folder; with --changed-files, the changed files")
     check.add_argument("--deposit", action="store_true",
-                       help="check PATH as a deposit (every file counts as committed, git is not asked); "
-                            "implied for archives")
+                       help="check PATH as a deposit (every file counts as committed, git is not asked) and write "
+                            "a replication report; implied for archives, --reference, --report-dir and several PATHs")
+    check.add_argument("--reference", metavar="DIR",
+                       help="deposits: the manuscript's figures as submitted (PNG, TIFF, JPEG, PDF pages), matched "
+                            "to the regenerated figures")
+    check.add_argument("--report-dir", metavar="DIR",
+                       help="deposits: write one replication report folder per deposit and an index into DIR")
     _report_flags(check)
     _run_flags(check)
 
@@ -285,9 +290,13 @@ def cmd_check(args: argparse.Namespace) -> int:
     from figproof.deposit import command as deposit
 
     paths = tuple(Path(p) for p in args.paths)
-    if not args.changed_files and deposit.wanted(paths, args.deposit):
+    if not args.changed_files and deposit.wanted(paths, args.deposit, args.reference, args.report_dir):
         request = deposit.DepositRun(paths=paths, reports=report_request(args), jobs=args.jobs, twice=args.twice,
-                                     quiet=args.quiet)
+                                     quiet=args.quiet, reference=Path(args.reference) if args.reference else None,
+                                     report_dir=Path(args.report_dir) if args.report_dir else None)
+        problem = deposit.usage_problem(request)
+        if problem is not None:
+            raise UsageError(problem)
         try:
             return deposit.run(request, _progress(args))
         except _one_line_errors() as exc:

@@ -1,24 +1,31 @@
-"""``figproof check DEPOSIT``: check a deposited archive or a plain folder as a data editor would.
+"""``figproof check DEPOSIT...``: check deposited archives or plain folders as a data editor would.
 
-The deposit is unpacked safely (:mod:`figproof.deposit.unpack`) into its own temporary folder, checked with
-every file counting as committed, reported, and removed.
+Each deposit is unpacked safely (:mod:`figproof.deposit.unpack`) into its own temporary folder.  Before anything
+runs, its environment is surveyed (:mod:`figproof.deposit.environment`); then its scripts are checked with every
+file counting as committed, the failures are grouped by environmental cause, the manuscript's figures (``--reference``)
+are matched to the regenerated ones (:mod:`figproof.deposit.references`), and the replication report is written
+(:mod:`figproof.deposit.replication`).  With several deposits each gets a report folder under ``--report-dir`` and
+an index lists them; a deposit that cannot be unpacked is listed in the index and does not stop the others.
 """
 
 from __future__ import annotations
 
+import hashlib
 import shutil
 import sys
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
+from figproof import __version__
+from figproof.deposit import environment, references, replication
 from figproof.deposit.unpack import DepositError, deposit_name, is_archive, opened
 from figproof.model.records import ScriptRun
 from figproof.pipeline import Checked, CheckOptions, check
-from figproof.report.write import ReportRequest, final_line, write_reports
+from figproof.report.write import ReportRequest, write_text
 
 # exit codes, as figproof.cli.ExitCode names them (this module may not import the command line)
-PASSED, FAILED = 0, 1
+REPRODUCED, NOT_REPRODUCED, REFUSED = 0, 1, 5
 
 Progress = Callable[[ScriptRun, int, int], None]
 
@@ -28,25 +35,82 @@ class DepositRun:
     """What the command line asks of a deposit check (built by :mod:`figproof.cli`)."""
 
     paths: tuple[Path, ...]
-    reports: ReportRequest
+    reports: ReportRequest  # --markdown and --json take the replication report of a single deposit
+    reference: Path | None = None
+    report_dir: Path | None = None
     jobs: int | None = None
     twice: bool = False
     quiet: bool = False
 
 
-def wanted(paths: Sequence[Path], deposit_flag: bool) -> bool:
-    """Whether ``figproof check`` was asked to check a deposit rather than a repo."""
-    return deposit_flag or any(is_archive(p) for p in paths)
+def wanted(paths: Sequence[Path], deposit_flag: bool, reference: str | None, report_dir: str | None) -> bool:
+    """Whether ``figproof check`` was asked to check deposits rather than one repo."""
+    return deposit_flag or bool(reference) or bool(report_dir) or len(paths) > 1 or any(is_archive(p) for p in paths)
 
 
-def check_one(path: Path, run: DepositRun, progress: Progress | None = None) -> Checked:
-    """Unpack (or open) one deposit and check it; the caller writes the reports and removes the artifacts."""
+def _sha256(path: Path) -> str | None:
+    if not path.is_file():
+        return None
+    digest = hashlib.sha256()
+    with open(path, "rb") as fh:
+        while chunk := fh.read(1 << 20):
+            digest.update(chunk)
+    return digest.hexdigest()
+
+
+def _survey(root: Path) -> environment.Survey:
+    """The environment the deposit needs, from the scripts discovery finds (nothing runs)."""
+    from figproof import rules
+    from figproof.config import Config, load_config
+    from figproof.discover.inventory import discover
+
+    config = load_config(root, rules=rules.by_id())
+    if config.root != root.resolve():
+        config = Config(root=root.resolve())
+    inventory = discover(config, use_git=False)
+    return environment.survey(config.root, inventory.scripts, inventory.data_files)
+
+
+def _say(run: DepositRun, text: str) -> None:
+    if not run.quiet:
+        print(text, file=sys.stderr)
+
+
+def _environment_note(name: str, found: environment.Survey) -> str:
+    missing = sorted({i.distribution for i in found.missing})
+    parts = [f"{len(found.imports)} third-party imports"]
+    if missing:
+        parts.append(f"missing here: {', '.join(missing)}")
+    if found.python2:
+        parts.append(f"{len(found.python2)} Python 2 script(s)")
+    unmet = [a for a in found.asks if not a.met]
+    if unmet:
+        parts.append(f"{len(unmet)} of {len(found.asks)} requirement versions not met")
+    return f"figproof: {name}: " + "; ".join(parts)
+
+
+def replicate(path: Path, run: DepositRun, out_dir: Path | None, progress: Progress | None = None
+              ) -> replication.Replication:
+    """Unpack (or open) one deposit, survey it, check it and compare it with the references.
+
+    ``out_dir`` receives the change views (None: none are written).
+    """
+    name = deposit_name(path.resolve())
     with opened(path) as root:
-        wanted_paths = (run.reports.images, run.reports.json, run.reports.markdown)
-        skip = tuple(s for s in (_inside(root, p) for p in wanted_paths if p is not None) if s)
-        options = CheckOptions(jobs=run.jobs, skip_copy=skip, twice=run.twice, cache=False, renders=True,
-                               deposit=True)
-        return check(root, options, progress=progress)
+        found = _survey(root)
+        _say(run, _environment_note(name, found))
+        options = CheckOptions(jobs=run.jobs, twice=run.twice, cache=False, renders=True, deposit=True,
+                               skip_copy=_skip(root, run, out_dir))
+        checked = check(root, options, progress=progress)
+    try:
+        return _replication(name, path, checked, found, run, out_dir)
+    finally:
+        shutil.rmtree(checked.artifacts, ignore_errors=True)
+
+
+def _skip(root: Path, run: DepositRun, out_dir: Path | None) -> tuple[str, ...]:
+    wanted_paths = (run.reports.images, run.reports.json, run.reports.markdown, out_dir)
+    return tuple(s for s in (_inside(root, p) for p in wanted_paths if p is not None) if s)
 
 
 def _inside(root: Path, p: Path) -> str | None:
@@ -56,23 +120,124 @@ def _inside(root: Path, p: Path) -> str | None:
         return None
 
 
+def _replication(name: str, path: Path, checked: Checked, found: environment.Survey, run: DepositRun,
+                 out_dir: Path | None) -> replication.Replication:
+    from figproof.report.provenance import environment_fingerprint
+    from figproof.run.execute import artifact_folder
+
+    runs = checked.result.runs
+    regenerated: list[references.Picture] = []
+    figures: list[replication.Regenerated] = []
+    for r in runs:
+        for fig in r.figures:
+            figures.append(replication.Regenerated(id=fig.id, script=r.path, outputs=fig.outputs))
+            if fig.render is not None:
+                pic = references.regenerated_picture(fig.id, artifact_folder(checked.artifacts, r.path) / "renders"
+                                                     / fig.render)
+                if pic is not None:
+                    regenerated.append(pic)
+    matches: list[references.Match] = []
+    problems: list[str] = []
+    views: dict[str, str] = {}
+    if run.reference is not None:
+        pictures, problems = references.load_references(run.reference)
+        matches = references.match(pictures, regenerated)
+        matched = references.matched_regenerated(matches)
+        figures = [replace(f, reference=matched.get(f.id)) for f in figures]
+        if out_dir is not None:
+            views = _change_views(matches, pictures, regenerated, out_dir)
+    freetype = next((r.freetype for r in runs if r.freetype), None)
+    return replication.Replication(
+        deposit=name, sha256=_sha256(path), version=__version__, survey=found,
+        causes=environment.causes(runs, found), runs=runs, matches=tuple(matches),
+        references_asked=run.reference is not None, reference_problems=tuple(problems), regenerated=tuple(figures),
+        change_views=views, findings=checked.result.findings, environment=environment_fingerprint(freetype))
+
+
+def _change_views(matches: Sequence[references.Match], pictures: Sequence[references.Picture],
+                  regenerated: Sequence[references.Picture], out_dir: Path) -> dict[str, str]:
+    by_label = {p.label: p for p in (*pictures, *regenerated)}
+    views: dict[str, str] = {}
+    for m in matches:
+        if m.verdict != "differs" or m.regenerated is None:
+            continue
+        file = f"changes/{m.reference.replace('/', '__')}.png"
+        references.change_view(by_label[m.reference], by_label[m.regenerated], out_dir / file)
+        views[m.reference] = file
+    return views
+
+
 def run(request: DepositRun, progress: Progress | None = None) -> int:
-    """Check the deposit named on the command line; return the exit code."""
+    """Check every deposit named on the command line; return the exit code."""
     paths = list(request.paths) or [Path(".")]
-    for p in paths:
-        if not p.exists():
-            raise DepositError(f"{p}: no such file or folder")
-    if len(paths) != 1:
-        raise DepositError("check takes one deposit per call")
-    checked = check_one(paths[0], request, progress)
-    try:
-        text = write_reports(checked, request.reports, shown_root=deposit_name(paths[0].resolve()))
-    finally:
-        shutil.rmtree(checked.artifacts, ignore_errors=True)
+    if request.report_dir is None:
+        return _single(paths[0], request, progress)
+    return _batch(paths, request, request.report_dir, progress)
+
+
+def usage_problem(request: DepositRun) -> str | None:
+    """A one-line mistake in how the deposit check was asked for (the command line exits 2), or None."""
+    if request.reference is not None and not request.reference.is_dir():
+        return f"{request.reference}: --reference must be a folder of figure files"
+    if len(request.paths) > 1 and request.report_dir is None:
+        return "several deposits need --report-dir DIR (one report folder each, and an index)"
+    return None
+
+
+def _single(path: Path, request: DepositRun, progress: Progress | None) -> int:
+    if not path.exists():
+        raise DepositError(f"{path}: no such file or folder")
+    markdown, js = request.reports.markdown, request.reports.json
+    out_dir = markdown.parent if markdown is not None else (js.parent if js is not None else None)
+    rep = replicate(path, request, out_dir, progress)
+    text = replication.render_markdown(rep)
+    if markdown is not None:
+        write_text(markdown, text)
+    if js is not None:
+        write_text(js, replication.render_json(rep))
     if not request.quiet:
         print(text)
-        print(final_line(checked.result), file=sys.stderr)
-    return PASSED if checked.result.summary.passed else FAILED
+        print(f"figproof: {'reproduced' if rep.reproduced else 'NOT reproduced'}: {replication.headline(rep)}",
+              file=sys.stderr)
+    return REPRODUCED if rep.reproduced else NOT_REPRODUCED
 
 
-__all__ = ["DepositRun", "check_one", "run", "wanted"]
+def _batch(paths: Sequence[Path], request: DepositRun, report_dir: Path, progress: Progress | None) -> int:
+    entries: list[replication.IndexEntry] = []
+    used: set[str] = set()
+    for path in paths:
+        name = deposit_name(path.resolve()) if path.exists() else path.name
+        folder = _unique(name, used)
+        try:
+            if not path.exists():
+                raise DepositError(f"{path}: no such file or folder")
+            rep = replicate(path, request, report_dir / folder, progress)
+        except DepositError as exc:
+            _say(request, f"figproof: {exc}")
+            entries.append(replication.IndexEntry(deposit=name, problem=str(exc)))
+            continue
+        write_text(report_dir / folder / "replication.md", replication.render_markdown(rep))
+        write_text(report_dir / folder / "replication.json", replication.render_json(rep))
+        entries.append(replication.IndexEntry(deposit=name, folder=folder, headline=replication.headline(rep),
+                                              reproduced=rep.reproduced))
+        _say(request, f"figproof: {name}: {'reproduced' if rep.reproduced else 'NOT reproduced'}: "
+                      f"{replication.headline(rep)}")
+    index = replication.render_index(entries)
+    write_text(report_dir / "index.md", index)
+    write_text(report_dir / "index.json", replication.index_json(entries))
+    if not request.quiet:
+        print(index)
+    if any(e.problem is not None for e in entries):
+        return REFUSED
+    return REPRODUCED if all(e.reproduced for e in entries) else NOT_REPRODUCED
+
+
+def _unique(name: str, used: set[str]) -> str:
+    folder, n = name, 2
+    while folder in used:
+        folder, n = f"{name}-{n}", n + 1
+    used.add(folder)
+    return folder
+
+
+__all__ = ["DepositRun", "replicate", "run", "usage_problem", "wanted"]

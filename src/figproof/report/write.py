@@ -86,6 +86,11 @@ def _write(path: Path, text: str) -> None:
         raise OutputError(f"{path}: cannot write the report ({_why(exc)}); choose a writable path") from None
 
 
+def write_text(path: Path, text: str) -> None:
+    """Write a report file whole or not at all (for reports rendered outside this module)."""
+    _write(path, text)
+
+
 def step_summary_path() -> Path | None:
     """$GITHUB_STEP_SUMMARY, when running in GitHub Actions."""
     value = os.environ.get("GITHUB_STEP_SUMMARY")
