@@ -238,7 +238,7 @@ def test_a_zipped_deposit_is_checked_and_every_file_counts_as_committed(tmp_path
     import json
 
     report = json.loads(out.read_text())
-    assert report["root"] == "growth-study"
+    assert report["deposit"] == "growth-study" and report["reproduced"] is True
     assert [r["path"] for r in report["scripts"]] == ["fig1.py"] and report["scripts"][0]["status"] == "ok"
     assert not [f for f in report["findings"] if f["rule"] in ("input-outside-repo", "input-missing")]
     assert not list(temp.iterdir())  # the unpacked deposit is gone
