@@ -93,7 +93,7 @@ def test_savefig_without_extension_records_the_file_matplotlib_writes(tmp_path: 
         "matplotlib.rcParams['savefig.format'] = 'svg'\n"
         "fig.savefig('figures/growth_vector')\n"
         "fig.savefig('figures/raw', format='pdf')\n"), "figures/.keep": ""})
-    checked, run = _run(repo, "fig.py", warm_runner)
+    _, run = _run(repo, "fig.py", warm_runner)
     assert [e.path for e in run.events if e.action == "save"] == [
         "figures/growth.png", "figures/growth_vector.svg", "figures/raw"]  # an explicit format adds nothing
     assert run.figures[0].outputs == ("figures/growth.png", "figures/growth_vector.svg", "figures/raw")

@@ -114,4 +114,5 @@ def blanked_lines(source: str) -> int:
     return sum(1 for i, line in enumerate(before) if line and (i >= len(after) or after[i] != line))
 
 
-__all__ = ["FIRST_CELL", "MATPLOTLIB_MAGIC", "Cell", "InlineDisplay", "NotebookError", "blanked_lines", "code_cells", "python_source"]
+__all__ = ["FIRST_CELL", "MATPLOTLIB_MAGIC", "Cell", "InlineDisplay", "NotebookError", "blanked_lines", "code_cells",
+           "python_source"]

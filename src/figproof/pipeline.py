@@ -319,16 +319,17 @@ def accept_findings(findings: list[Finding], config: Config, inventory: Inventor
               for old in former]
     entries = [replace(e, rule=renamed[e.rule]) if e.rule in renamed else e for e in entries]
     marked, stale = apply_acceptance(findings, allows, entries)
-    partial = ran is not None and bool(set(inventory.scripts) - ran)
+    ran_all = set(inventory.scripts) if ran is None else ran
+    partial = bool(set(inventory.scripts) - ran_all)
     off = [rid for rid, settings in config.rules.items() if settings.severity == "off"]
     for key, allow in unused_allows(marked, allows, off):
         path, _, cell = key.partition("#cell=")
-        if (partial and path not in ran) or (finished is not None and path not in finished):
+        if (partial and path not in ran_all) or (finished is not None and path not in finished):
             continue  # a script this check did not run, or that failed: its findings were not all looked for
         where = f"{path}, cell {cell}, line {allow.line}" if cell else f"{path}, line {allow.line}"
         notes.append(f"{where}: allow comment for {allow.rule} matches no finding (stale); remove it")
     if partial:
-        stale = [e for e in stale if e.path in ran]
+        stale = [e for e in stale if e.path in ran_all]
     notes += [f"{config.accepted_file}: entry for {e.rule} in {e.path} matches no finding any more (stale)"
               for e in stale]
     return sorted(marked, key=Finding.sort_key), notes

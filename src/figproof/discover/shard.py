@@ -164,7 +164,8 @@ def merge_reports(json_texts: Sequence[str], names: Sequence[str] | None = None)
         summary["accepted"] = accepted
     fail_on = merged.get("fail_on")
     if fail_on in (*SEVERITIES, "never"):  # the verdict over the merged findings (orphans judged again)
-        summary["passed"] = not any(isinstance(f, dict) and not f.get("accepted") and _crosses(f.get("severity"), fail_on)
+        summary["passed"] = not any(isinstance(f, dict) and not f.get("accepted")
+                                    and _crosses(f.get("severity"), fail_on)
                                     for f in findings)
     else:
         summary["passed"] = all(r["summary"]["passed"] for r in reports)
@@ -200,7 +201,8 @@ def _judge_orphans(reports: list[dict[str, Any]], not_run: list[str]) -> tuple[l
 
     views = [view(r) for r in reports]
     common = set(views[0]).intersection(*views[1:])
-    others = [f for r in reports for f in r["findings"] if not (isinstance(f, dict) and f.get("rule") == "figure-orphan")]
+    others = [f for r in reports for f in r["findings"]
+              if not (isinstance(f, dict) and f.get("rule") == "figure-orphan")]
     orphans: dict[tuple[str, str], Any] = {}
     for key in sorted(common):
         # the shard whose view says scripts did not finish has the more careful wording

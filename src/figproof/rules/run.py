@@ -58,7 +58,8 @@ def _location(run: ScriptRun) -> tuple[str, Source | None]:
     if err.source.path == run.path:
         return f" at {err.source}", err.source
     called = err.called_from
-    return f" in {err.source}" + (f", called at {called}" if called is not None else ""), called or Source(path=run.path)
+    where = f" in {err.source}" + (f", called at {called}" if called is not None else "")
+    return where, called or Source(path=run.path)
 
 
 @rule(
