@@ -54,7 +54,7 @@ def test_writing_into_the_real_repo_by_absolute_path_is_blocked(tmp_path: Path) 
     assert not leak.exists() and data.read_text() == "the lab's notes"
     assert {r.path: [e.action for e in r.events] for r in result.runs} == {
         "fig.py": ["blocked-write"], "other.py": ["blocked-write"]}
-    assert {f.path for f in result.findings if f.rule == "input-outside-repo"} == {"fig.py", "other.py"}
+    assert {f.path for f in result.findings if f.rule == "write-outside-copy"} == {"fig.py", "other.py"}
 
 
 @pytest.mark.slow

@@ -187,7 +187,6 @@ def test_outside_repo_network_blocked_write_untracked() -> None:
     events = (
         FileEvent(action="network", path="('data.lab.example', 443)", inside_repo=False, exists=False,
                   source=src(2)),
-        FileEvent(action="blocked-write", path="/home/ana/paper/fig1.png", inside_repo=False, source=src(7)),
         FileEvent(action="read", path="data/notes.csv", sha256="cd", source=src(3)),
         FileEvent(action="read", path="data/growth.csv", sha256="ef", source=src(4)),
         FileEvent(action="read", path="https://data.lab.example/growth.csv", inside_repo=False, source=src(5)),
@@ -195,8 +194,7 @@ def test_outside_repo_network_blocked_write_untracked() -> None:
     r = run(path="fig.py", events=events)
     inventory = Inventory(tracked=("fig.py", "data/growth.csv"), is_git=True)
     found = {h.key: h for h in hits(reproduce.input_outside_repo, r, ctx(r, inventory=inventory))}
-    assert set(found) == {"network:('data.lab.example', 443)", "write:/home/ana/paper/fig1.png",
-                          "untracked:data/notes.csv", "read:https://data.lab.example/growth.csv"}
+    assert set(found) == {"network:('data.lab.example', 443)", "untracked:data/notes.csv", "read:https://data.lab.example/growth.csv"}
     assert found["untracked:data/notes.csv"].severity == "warning"
     assert "over the network" in found["read:https://data.lab.example/growth.csv"].message
     # not a git repo: untracked files are not a finding
@@ -333,3 +331,35 @@ def test_rules_record() -> None:
     assert ids == ["figure-drift", "input-missing", "input-outside-repo", "figure-orphan",
                    "output-nondeterministic"]
     assert all(r.scope == "run" and r.bad != r.good for r in reproduce.RULES)
+
+
+# ---------------------------------------------------------------------------- write-outside-copy
+
+
+def test_write_outside_copy_one_finding_per_cause() -> None:
+    from figproof.model.records import ScriptError
+    from figproof.rules import run as run_rules
+
+    events = (
+        FileEvent(action="blocked-write", path="/home/ana/paper/data.csv", inside_repo=False, source=src(4),
+                  operation="remove"),
+        FileEvent(action="blocked-write", path="/home/ana/paper/data.csv", inside_repo=False, source=src(4),
+                  operation="remove"),  # the same line in a loop: one cause
+        FileEvent(action="blocked-write", path="/home/ana/paper/data.csv", inside_repo=False, source=src(9),
+                  operation="remove (kernel)"),
+        FileEvent(action="subprocess", path="/home/ana/paper", inside_repo=False, source=src(11),
+                  operation="rm -rf /home/ana/paper"),
+    )
+    error = ScriptError(kind="exception", type="PermissionError", source=src(4),
+                        message="figproof: remove /home/ana/paper/data.csv is refused: it is outside the copy")
+    r = run(path="fig.py", status="failed", error=error, events=events,
+            isolation=("repo-copy", "kernel-write-confinement"))
+    found = hits(run_rules.write_outside_copy, r, ctx(r))
+    assert [h.source.line for h in found if h.source] == [4, 9, 11]
+    assert "figproof refused it" in found[0].message and "the kernel refused it" in found[1].message
+    assert "`rm -rf /home/ana/paper`" in found[2].message and "the kernel refused any write" in found[2].message
+    # the PermissionError the refusal raised is the same cause: script-fails stays quiet
+    assert hits(run_rules.script_fails, r, ctx(r)) == []
+    other = run(path="fig.py", status="failed", error=ScriptError(kind="exception", type="PermissionError",
+                                                                  message="[Errno 13] denied", source=src(2)))
+    assert len(hits(run_rules.script_fails, other, ctx(other))) == 1

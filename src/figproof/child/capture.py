@@ -255,10 +255,7 @@ def install_io_hooks(rec: Recorder, *, network: bool) -> None:
         if not inside and rec.scratch(resolved):
             return _REAL_OPEN(file, mode, *args, **kwargs)  # scratch files in the temp folder are fine
         src, _ = rec.user_source(2)
-        if writing and not inside:
-            rec.event(FileEvent(action="blocked-write", path=shown, inside_repo=False, exists=resolved.exists(),
-                                source=src))
-            raise PermissionError(f"figproof: writing outside the repo is blocked during a check: {shown}")
+        # a write outside the copy is refused (and recorded) by the audit hook of figproof.child.audit
         try:
             handle = _REAL_OPEN(file, mode, *args, **kwargs)
         except FileNotFoundError:
@@ -627,8 +624,10 @@ def install_matplotlib_hooks(rec: Recorder) -> None:
         if info is not None:
             shown, inside = info
             if not inside and not rec.scratch(Path(os.fsdecode(fname)).resolve()):
-                rec.event(FileEvent(action="blocked-write", path=shown, inside_repo=False, source=src))
-                raise PermissionError(f"figproof: saving outside the repo is blocked during a check: {shown}")
+                rec.event(FileEvent(action="blocked-write", path=shown, inside_repo=False, source=src,
+                                    operation="save a figure to"))
+                raise PermissionError(f"figproof: save a figure to {shown} is refused: it is outside the copy of "
+                                      f"the repo the script runs on")
         rec._busy = True
         rec.drawn.discard(id(self))
         try:

@@ -240,7 +240,7 @@ def main(argv: list[str] | None = None) -> int:
     _die_with_parent()
     enter_view(spec)
     try:
-        return _run(spec)
+        return _run(spec, Path(argv[0]).parent)
     except OSError as exc:
         if exc.errno not in (28, 122):  # ENOSPC, EDQUOT: the run record could not be written
             raise
@@ -251,10 +251,11 @@ def main(argv: list[str] | None = None) -> int:
         os._exit(ENVIRONMENT_EXIT)
 
 
-def _run(spec: Spec) -> int:
+def _run(spec: Spec, base: Path) -> int:
     out = Path(spec.out)
     started = time.perf_counter()
-    isolation = [f"repo-{spec.view_method}"]
+    confinement = _confinement(spec, base)
+    isolation = [f"repo-{spec.view_method}", "python-write-guard"]
     if limit_memory(spec.memory_limit):
         isolation.append("memory-cap")
     if not spec.network:
@@ -269,6 +270,9 @@ def _run(spec: Spec) -> int:
 
     rec = capture.Recorder(sandbox=Path(spec.sandbox).resolve(), script=spec.script,
                            events_path=out / "events.jsonl", protect=tuple(Path(p) for p in spec.protect))
+    from figproof.child import audit
+
+    audit.install(confinement, rec.event, lambda: rec.user_source(1)[0])
     capture.install_io_hooks(rec, network=spec.network)
     capture.install_loader_hooks(rec)
     capture.install_matplotlib_hooks(rec)
@@ -280,6 +284,20 @@ def _run(spec: Spec) -> int:
     sys.stderr.flush()
     # threads the script left running must not keep the child alive
     os._exit(0)
+
+
+def _confinement(spec: Spec, base: Path) -> Any:
+    """Where the script may write: the copy and its run folder (``base``), the run record's folder, and a temp
+    folder of its own inside ``base`` (so ``tempfile`` works and the system's temp folder is never written)."""
+    import tempfile
+
+    from figproof.child.audit import Confinement
+
+    tmp = base / "tmp"
+    tmp.mkdir(exist_ok=True)
+    os.environ["TMPDIR"] = str(tmp)
+    tempfile.tempdir = None  # the warm pool's server may have asked already
+    return Confinement.beneath([base, Path(spec.sandbox), Path(spec.out)], [Path(p) for p in spec.protect])
 
 
 def _finish(spec: Spec, rec: Any, error: Any, seconds: float, isolation: tuple[str, ...]) -> None:

@@ -148,7 +148,7 @@ TextRole = Literal["title", "xlabel", "ylabel", "tick", "legend", "annotation", 
 PatchKind = Literal["legend", "legend-entry", "fill", "rectangle", "polygon", "other"]
 Projection = Literal["rectilinear", "polar", "3d", "other"]
 ErrorKind = Literal["exception", "timeout", "memory", "signal", "exit", "needs-input", "no-report"]
-FileAction = Literal["read", "write", "save", "network", "missing", "blocked-write"]
+FileAction = Literal["read", "write", "save", "network", "missing", "blocked-write", "subprocess"]
 RunStatus = Literal["ok", "failed", "timeout", "memory", "skipped"]
 WorkingDir = Literal["root", "script"]
 
@@ -480,6 +480,7 @@ class FileEvent(Serialisable):
     sha256: str | None = None
     format: str | None = None
     source: Source | None = None
+    operation: str = ""  # blocked-write: what was refused ("remove", "rename", ...); subprocess: its command line
 
 
 @model

@@ -291,7 +291,7 @@ def _is_url(path: str) -> bool:
         network depends on something a fresh checkout does not have: the figure reproduces only on the
         author's machine, or only while a server keeps the same data. Network access is off during a check,
         so such a read is reported here instead of as an unexplained crash. Writes outside the repo are
-        refused during a check and reported here too.
+        refused during a check and reported by write-outside-copy.
     """,
     fix="""
         Copy the file into the repo (or commit a script that fetches it and records its checksum) and read it
@@ -327,9 +327,6 @@ def input_outside_repo(run: ScriptRun, context: RunContext, knobs: Knobs) -> Ite
             yield Hit(message=f"{run.path} tries to connect to{target or ' the network'}{where}, "
                               f"and network access is off during a check",
                       source=ev.source, key=f"network:{ev.path}")
-        elif ev.action == "blocked-write":
-            yield Hit(message=f"{run.path} writes {ev.path}{where}, outside the repo, and the write was refused",
-                      source=ev.source, key=f"write:{ev.path}")
         elif ev.action in ("read", "missing") and (not ev.inside_repo or not is_repo_path(ev.path)):
             if _is_url(ev.path):
                 what = f"{ev.path} is read{where} over the network"

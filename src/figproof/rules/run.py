@@ -102,6 +102,8 @@ def script_fails(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator[
     err = run.error
     if run.status == "ok" or run.status == "skipped" or err is None:
         return
+    if _refused_write(run):
+        return  # the refusal is the cause, and write-outside-copy reports it
     where, source = _location(run)
     # one finding per cause: a missing input file is input-missing's (or input-outside-repo's) error, and
     # the failure it causes is a note pointing at it; a missing package is one finding for all its scripts
@@ -127,4 +129,73 @@ def script_fails(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator[
     yield Hit(message=f"{run.path} {what}{where}", source=source, key=err.kind)
 
 
-RULES = (script_fails,)
+def _refused_write(run: ScriptRun) -> bool:
+    err = run.error
+    return (err is not None and err.type == "PermissionError" and err.message.startswith("figproof: ")
+            and any(ev.action == "blocked-write" for ev in run.events))
+
+
+@rule(
+    "write-outside-copy",
+    severity="error",
+    confidence="certain",
+    scope="run",
+    why="""
+        During a check a script runs on a copy of the repo (or an overlay view of it), so whatever it writes,
+        removes or renames there is thrown away and the working tree stays as committed. A script that
+        reaches outside that copy, by an absolute path into the repo, into the home folder or through a
+        symbolic link, would change the user's own files: delete data, overwrite committed figures or leave
+        files behind. figproof refuses such changes and reports each one here, at the line that tried it.
+        A script that does this on a colleague's machine does it there too, without figproof in the way.
+    """,
+    fix="""
+        Write only beneath the folder the script runs in, with paths relative to the repo (or into a
+        temporary folder from `tempfile`). Replace absolute paths and `~` with relative ones, and do not
+        remove or rename inputs. A command the script starts (`subprocess`, `os.system`) must not name the
+        repo by its absolute path either.
+    """,
+    sources=("Common practice: a figure script reads its inputs and writes its outputs, and changes "
+             "nothing else.",),
+    bad="""
+        import os
+        import matplotlib.pyplot as plt
+        fig, ax = plt.subplots()
+        ax.plot([1, 2, 3], [2.0, 1.5, 3.0], marker="o")
+        fig.savefig("growth.png")
+        os.remove(os.path.expanduser("~/growth-old.png"))
+    """,
+    good="""
+        import matplotlib.pyplot as plt
+        fig, ax = plt.subplots()
+        ax.plot([1, 2, 3], [2.0, 1.5, 3.0], marker="o")
+        fig.savefig("growth.png")
+    """,
+)
+def write_outside_copy(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator[Hit]:
+    """A script writes, removes, renames or changes a file outside the copy of the repo it runs on."""
+    seen: set[tuple[str, str, str, str]] = set()
+    kernel = "kernel-write-confinement" in run.isolation
+    for ev in run.events:
+        if ev.action not in ("blocked-write", "subprocess"):
+            continue
+        mark = (ev.action, ev.operation, ev.path, str(ev.source))
+        if mark in seen:
+            continue
+        seen.add(mark)
+        where = f" at {ev.source}" if ev.source is not None else ""
+        if ev.action == "subprocess":
+            held = ("the kernel refused any write there" if kernel
+                    else "no layer below Python held writes there on this machine")
+            yield Hit(message=f"{run.path} starts `{ev.operation}`{where}, which names {ev.path}, the repo "
+                              f"itself and not the copy the script ran on; {held}",
+                      source=ev.source, key=f"subprocess:{ev.path}")
+            continue
+        verb = ev.operation or "write"
+        by = "the kernel" if verb.endswith(" (kernel)") else "figproof"
+        verb = verb.removesuffix(" (kernel)")
+        yield Hit(message=f"{run.path} tries to {verb} {ev.path}{where}, outside the copy of the repo it ran "
+                          f"on; {by} refused it",
+                  source=ev.source, key=f"write:{verb}:{ev.path}")
+
+
+RULES = (script_fails, write_outside_copy)
