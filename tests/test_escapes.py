@@ -19,9 +19,11 @@ from pathlib import Path
 import pytest
 
 from figproof import cli
+from figproof.child import landlock
 
 pytestmark = pytest.mark.skipif(not Path("/proc/self/fd").exists(),
                                 reason="the hostile scripts use POSIX calls and the guard reads /proc (Linux)")
+KERNEL = landlock.abi_version() > 0  # Landlock present and enabled (this project's CI machine has ABI 7)
 
 HEAD = ("import ctypes, os, pathlib, shutil, subprocess\n"
         "import matplotlib.pyplot as plt; REPO, OUT = {repo!r}, {out!r}\n")
@@ -45,6 +47,9 @@ ESCAPES = {
     "link_out.py": "open('out_link.txt', 'w').write('through the link')",
     "home.py": "open(OUT, 'w').write('escaped')",
 }
+if KERNEL:
+    # only the kernel layer holds a program Python does not run: without it `rm` would delete the test's repo
+    ESCAPES["subprocess_rm.py"] = "subprocess.run(['rm', '-rf', REPO], check=False)"
 HONEST = """
 import matplotlib.pyplot as plt
 fig, ax = plt.subplots()
@@ -130,8 +135,21 @@ def test_the_message_shows_the_path_the_script_asked_for(checked: Checked) -> No
     assert f"remove the tree {checked.repo}/data " in str(f["message"])
 
 
+@pytest.mark.skipif(not KERNEL, reason="Landlock is absent or disabled on this machine")
+def test_kernel_layers_are_active_and_listed(checked: Checked) -> None:
+    runs = {r["path"]: r for r in checked.report["scripts"]}  # type: ignore[union-attr, index]
+    for run in runs.values():
+        assert {"kernel-write-confinement", "kernel-network-block", "python-write-guard"} <= set(run["isolation"])
+    # the C library's unlink was let through to the kernel, which refused it; the report says so
+    [f] = [f for f in _findings(checked, "ctypes_unlink.py") if f["rule"] == "write-outside-copy"]
+    assert str(f["message"]).endswith("the kernel refused it")
+    [f] = [f for f in _findings(checked, "subprocess_rm.py") if f["rule"] == "write-outside-copy"]
+    assert f"`rm -rf {checked.repo}`" in str(f["message"])
+
+
 def test_other_scripts_are_still_checked_and_the_check_fails(checked: Checked) -> None:
     runs = {r["path"]: r for r in checked.report["scripts"]}  # type: ignore[union-attr, index]
     assert runs["honest.py"]["status"] == "ok" and runs["honest.py"]["figures"]
     assert not _findings(checked, "honest.py")
     assert checked.code == 1
+    assert checked.report["working_tree_changes"] == []  # every layer held: nothing reached the tree

@@ -185,7 +185,7 @@ def test_read_of_file_a_later_script_writes() -> None:
 
 def test_outside_repo_network_blocked_write_untracked() -> None:
     events = (
-        FileEvent(action="network", path="('data.lab.example', 443)", inside_repo=False, exists=False,
+        FileEvent(action="network", path="data.lab.example:443", inside_repo=False, exists=False,
                   source=src(2)),
         FileEvent(action="read", path="data/notes.csv", sha256="cd", source=src(3)),
         FileEvent(action="read", path="data/growth.csv", sha256="ef", source=src(4)),
@@ -194,7 +194,8 @@ def test_outside_repo_network_blocked_write_untracked() -> None:
     r = run(path="fig.py", events=events)
     inventory = Inventory(tracked=("fig.py", "data/growth.csv"), is_git=True)
     found = {h.key: h for h in hits(reproduce.input_outside_repo, r, ctx(r, inventory=inventory))}
-    assert set(found) == {"network:('data.lab.example', 443)", "untracked:data/notes.csv", "read:https://data.lab.example/growth.csv"}
+    assert set(found) == {"network:data.lab.example:443", "untracked:data/notes.csv",
+                          "read:https://data.lab.example/growth.csv"}
     assert found["untracked:data/notes.csv"].severity == "warning"
     assert "over the network" in found["read:https://data.lab.example/growth.csv"].message
     # not a git repo: untracked files are not a finding
@@ -357,7 +358,7 @@ def test_write_outside_copy_one_finding_per_cause() -> None:
     found = hits(run_rules.write_outside_copy, r, ctx(r))
     assert [h.source.line for h in found if h.source] == [4, 9, 11]
     assert "figproof refused it" in found[0].message and "the kernel refused it" in found[1].message
-    assert "`rm -rf /home/ana/paper`" in found[2].message and "the kernel refused any write" in found[2].message
+    assert "`rm -rf /home/ana/paper`" in found[2].message and "the kernel layer refused its writes" in found[2].message
     # the PermissionError the refusal raised is the same cause: script-fails stays quiet
     assert hits(run_rules.script_fails, r, ctx(r)) == []
     other = run(path="fig.py", status="failed", error=ScriptError(kind="exception", type="PermissionError",

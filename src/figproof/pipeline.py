@@ -33,6 +33,7 @@ from figproof.policy.accept import (
 )
 from figproof.policy.verdict import summarise
 from figproof.rules.base import renamed_ids
+from figproof.run import treeguard
 from figproof.run.cache import CachingRunner, prune, recorded_dependencies, recorded_uses
 from figproof.run.execute import Options, Runner, Task, execute_all
 from figproof.run.pool import default_runner
@@ -155,6 +156,7 @@ def _check(path: Path, config: Config, inventory: Inventory, options: CheckOptio
                            renders=options.renders or options.twice)
     selected = options.scripts is not None or options.changed is not None or options.changed_since is not None \
         or options.shard is not None
+    guarded = treeguard.snapshot(config.root, skip=(config.cache_dir,))
     with _runners(config, options, runner) as (active, bare):
         runs = tuple(execute_all(tasks, exec_options, runner=active, progress=progress))
         second = None
@@ -163,6 +165,7 @@ def _check(path: Path, config: Config, inventory: Inventory, options: CheckOptio
             again = replace(exec_options, artifacts=artifacts / "second-run")
             second = (again.artifacts, execute_all([Task(script=r.path, working_dir=r.working_dir) for r in runs],
                                                    again, runner=bare))
+    tree_changes = treeguard.compare(guarded, treeguard.snapshot(config.root, skip=(config.cache_dir,)))
     # whether a result came from the cache is told on the terminal, not in reports (they stay byte-identical)
     cached = len(active.answered) if isinstance(active, CachingRunner) else 0
     if options.cache and not selected:
@@ -180,10 +183,11 @@ def _check(path: Path, config: Config, inventory: Inventory, options: CheckOptio
     notes = [*config.notes, *shared_notes, *notes]
     if not inventory.scripts:
         notes.append("no figure scripts found (no .py or .ipynb file imports matplotlib, seaborn or pandas plotting)")
-    summary = summarise(runs, findings, config.fail_on)
+    summary = summarise(runs, findings, config.fail_on, tree_changed=bool(tree_changes))
     result = CheckResult(root=_shown_root(config.root, path), version=__version__, runs=runs,
                          findings=tuple(findings), summary=summary, fail_on=config.fail_on, notes=tuple(notes),
-                         not_run=not_run, pending=tuple(pending))
+                         not_run=not_run, pending=tuple(pending),
+                         tree_changes=tree_changes)
     return Checked(result=result, config=config, inventory=inventory, context=context, artifacts=artifacts,
                    cached=cached)
 

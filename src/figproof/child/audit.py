@@ -201,13 +201,14 @@ def install(confinement: Confinement, record: Record, source: SourceOf) -> None:
         if event == "open":
             if not _writes(args[1], args[2]):
                 return
-            todo: tuple[str, tuple[_PathArg, ...]] | None = ("write", ((0, None, True),))
+            todo: tuple[str, tuple[_PathArg, ...]] = ("write", ((0, None, True),))
         else:
-            todo = events.get(event)
-            if todo is None:
+            found = events.get(event)
+            if found is None:
                 if event in _COMMANDS:
                     guard.command(args, *_COMMANDS[event])
                 return
+            todo = found
         guard.busy = True
         try:
             verb, spots = todo
@@ -237,7 +238,7 @@ def guard_ctypes(guard: _Guard) -> None:
 
 
 def _guarded_type(base: type, guard: _Guard) -> type:
-    class Guarded(base):  # type: ignore[misc, valid-type]
+    class Guarded(base):
         _flags_ = base._flags_  # type: ignore[attr-defined]  # ctypes requires both on a function type
         _restype_ = base._restype_  # type: ignore[attr-defined]
 
@@ -286,6 +287,7 @@ def _text_arg(value: Any) -> Any:
 
 def _native_spots(name: str, args: tuple[Any, ...]) -> tuple[str, list[tuple[Any, str | None]]] | None:
     """What a C call does and the real paths it touches, or None when it does not change files."""
+    positions: tuple[int, ...]
     if name in _NATIVE_OPEN:
         path_at, mode_at, fd_at = _NATIVE_OPEN[name]
         if len(args) <= mode_at:

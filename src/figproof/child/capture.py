@@ -198,6 +198,8 @@ class Recorder:
         text = os.fsdecode(path)
         if text.startswith(("http://", "https://", "ftp://", "s3://", "gs://")):
             return text, False
+        if text.startswith("~"):
+            return text, False  # Python does not expand it: never shown joined onto the working folder
         resolved = Path(text).resolve()
         try:
             rel = resolved.relative_to(self.sandbox).as_posix()
@@ -233,6 +235,14 @@ _SYSTEM = _system_prefixes()
 def _is_temp(path: Path) -> bool:
     """Scratch and system locations: reads there are the libraries' business, writes are allowed."""
     return str(path).startswith(_SYSTEM)
+
+
+def _address(target: Any) -> str:
+    """A socket address as host:port (IPv6 hosts in brackets), anything else as text."""
+    if isinstance(target, tuple) and len(target) >= 2 and isinstance(target[0], (str, bytes)):
+        host = os.fsdecode(target[0]) if isinstance(target[0], bytes) else target[0]
+        return f"[{host}]:{target[1]}" if ":" in host else f"{host}:{target[1]}"
+    return os.fsdecode(target) if isinstance(target, bytes) else str(target)
 
 
 # --------------------------------------------------------------------------
@@ -282,15 +292,15 @@ def install_io_hooks(rec: Recorder, *, network: bool) -> None:
     if not network:
         def refuse(*args: Any, **kwargs: Any) -> Any:
             src, _ = rec.user_source(2)
-            target = args[1] if len(args) > 1 else (args[0] if args else "")
-            rec.event(FileEvent(action="network", path=str(target)[:200], inside_repo=False, exists=False,
+            target = _address(args[1] if len(args) > 1 else (args[0] if args else ""))
+            rec.event(FileEvent(action="network", path=target[:200], inside_repo=False, exists=False,
                                 source=src))
-            raise NetworkRefused(f"figproof: network access is off during a check (tried {target!r})")
+            raise NetworkRefused(f"figproof: network access is off during a check (tried {target})")
 
         socket.socket.connect = refuse  # type: ignore[method-assign]
         socket.socket.connect_ex = refuse  # type: ignore[method-assign]
         socket.create_connection = refuse
-        socket.getaddrinfo = lambda *a, **k: refuse(None, a[0] if a else "")
+        socket.getaddrinfo = lambda *a, **k: refuse(None, a[:2] if len(a) > 1 and a[1] else a[0] if a else "")
 
 
 # --------------------------------------------------------------------------

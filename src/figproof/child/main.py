@@ -255,7 +255,8 @@ def _run(spec: Spec, base: Path) -> int:
     out = Path(spec.out)
     started = time.perf_counter()
     confinement = _confinement(spec, base)
-    isolation = [f"repo-{spec.view_method}", "python-write-guard"]
+    kernel = _kernel_layer(spec, confinement)
+    isolation = [f"repo-{spec.view_method}", *kernel.tags, "python-write-guard"]
     if limit_memory(spec.memory_limit):
         isolation.append("memory-cap")
     if not spec.network:
@@ -273,6 +274,8 @@ def _run(spec: Spec, base: Path) -> int:
     from figproof.child import audit
 
     audit.install(confinement, rec.event, lambda: rec.user_source(1)[0])
+    if kernel.note:
+        rec.notes.append(kernel.note)
     capture.install_io_hooks(rec, network=spec.network)
     capture.install_loader_hooks(rec)
     capture.install_matplotlib_hooks(rec)
@@ -298,6 +301,25 @@ def _confinement(spec: Spec, base: Path) -> Any:
     os.environ["TMPDIR"] = str(tmp)
     tempfile.tempdir = None  # the warm pool's server may have asked already
     return Confinement.beneath([base, Path(spec.sandbox), Path(spec.out)], [Path(p) for p in spec.protect])
+
+
+@dataclass(frozen=True, slots=True)
+class _Kernel:
+    tags: tuple[str, ...] = ()
+    note: str = ""
+
+
+def _kernel_layer(spec: Spec, confinement: Any) -> _Kernel:
+    """Landlock (Linux): the kernel holds writes to the same folders as the audit hook, and TCP when the
+    network is off; must come after the repo view is entered and before any thread or user code."""
+    from figproof.child import audit, landlock
+
+    outcome = landlock.confine([*confinement.roots, *audit.DEVICE_FOLDERS], audit.DEVICES,
+                               block_tcp=not spec.network)
+    confinement.kernel = outcome.writes
+    tags = ("kernel-write-confinement",) * outcome.writes + ("kernel-network-block",) * outcome.network
+    note = f"{outcome.note}; the Python write guard and the working-tree check still hold" if outcome.note else ""
+    return _Kernel(tags=tags, note=note)
 
 
 def _finish(spec: Spec, rec: Any, error: Any, seconds: float, isolation: tuple[str, ...]) -> None:

@@ -104,6 +104,14 @@ class Summary:
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
+class TreeChange:
+    """A path of the user's repo that changed while the scripts ran (the isolation did not hold)."""
+
+    path: str  # repo-relative POSIX
+    change: str  # what changed, in plain words ("file removed", "permissions 644 → 0")
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
 class CheckResult:
     """Everything one ``figproof check`` produced; reporters render it, policy decided ``passed``."""
 
@@ -117,3 +125,4 @@ class CheckResult:
     not_run: tuple[str, ...] = ()  # figure scripts a partial check did not run (selection, shard, exclude)
     # findings a partial check cannot judge alone (orphans a script that did not run may write); merge judges them
     pending: tuple[Finding, ...] = ()
+    tree_changes: tuple[TreeChange, ...] = ()  # the working-tree guard's differences: the check fails

@@ -20,8 +20,10 @@ def crosses(severity: str, fail_on: str) -> bool:
     return _RANK[severity] <= _RANK[fail_on]
 
 
-def summarise(runs: Sequence[ScriptRun], findings: Sequence[Finding], fail_on: str) -> Summary:
-    """Count open findings by severity and decide whether the check passed."""
+def summarise(runs: Sequence[ScriptRun], findings: Sequence[Finding], fail_on: str, *,
+              tree_changed: bool = False) -> Summary:
+    """Count open findings by severity and decide whether the check passed (never when the user's working
+    tree changed during the check, whatever ``fail_on`` says)."""
     open_ = [f for f in findings if f.accepted is None]
     accepted = len(findings) - len(open_)
     counts = {s: sum(1 for f in open_ if f.severity == s) for s in SEVERITIES}
@@ -32,5 +34,5 @@ def summarise(runs: Sequence[ScriptRun], findings: Sequence[Finding], fail_on: s
         warnings=counts["warning"],
         notes=counts["note"],
         accepted=accepted,
-        passed=not any(crosses(f.severity, fail_on) for f in open_),
+        passed=not tree_changed and not any(crosses(f.severity, fail_on) for f in open_),
     )

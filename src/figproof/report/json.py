@@ -65,6 +65,7 @@ def report_dict(result: CheckResult, *, timings: bool = False) -> dict[str, Any]
         "summary": {"scripts": s.scripts, "figures": s.figures, "errors": s.errors, "warnings": s.warnings,
                     "notes": s.notes, "accepted": s.accepted, "passed": s.passed},
         "notes": list(result.notes),
+        "working_tree_changes": [{"path": c.path, "change": c.change} for c in result.tree_changes],
     }
     if result.not_run:  # a partial check: which figure scripts did not run, and what it could not judge alone
         out["not_run"] = list(result.not_run)

@@ -11,6 +11,9 @@ from figproof.model.records import ScriptRun
 STEP_SUMMARY_LIMIT = 1024 * 1024  # GitHub rejects job summaries over 1 MiB
 _ISOLATION = {"repo-overlay": "ran on an overlay of the read-only repo (nothing copied)",
               "repo-reflink": "ran on copy-on-write clones of the repo", "repo-copy": "ran on a copy of the repo",
+              "kernel-write-confinement": "kernel write confinement (Landlock)",
+              "kernel-network-block": "kernel network block (Landlock)",
+              "python-write-guard": "Python write guard (audit hooks)",
               "memory-cap": "memory cap", "network-off": "network off"}
 
 
@@ -44,7 +47,23 @@ def _isolation(runs: tuple[ScriptRun, ...]) -> str:
     # how the repo was shown: every method some run used; the other layers: only when every run had them
     seen = [tag for tag in _ISOLATION if runs and (any if tag.startswith("repo-") else all)(
         tag in r.isolation for r in runs if r.isolation)]
-    return ", ".join(_ISOLATION[t] for t in seen) or "none recorded"
+    # the parent enforces the time limit on every run, so it is in force whenever a script ran
+    return ", ".join([*(_ISOLATION[t] for t in seen), *(["time limit"] if runs else [])]) or "none recorded"
+
+
+def _tree_changes(result: CheckResult) -> list[str]:
+    """The loudest part of the report: the user's own files changed while the scripts ran."""
+    changes = result.tree_changes
+    if not changes:
+        return []
+    lines = [f"> **Error: the working tree changed during the check.** {len(changes)} path(s) of your repo are "
+             f"not as they were before the first script ran; figproof's isolation did not hold for them, so "
+             f"this check fails whatever `fail-on` says. Compare them with git (`git status`, `git diff`) and "
+             f"read the findings of the scripts that ran.", ">"]
+    lines += [f"> - `{_cell(c.path)}`: {_cell(c.change)}" for c in changes[:50]]
+    if len(changes) > 50:
+        lines.append(f"> - and {len(changes) - 50} more (all are listed in the JSON report)")
+    return [*lines, ""]
 
 
 def _findings_table(findings: list[Finding], images: Mapping[str, str]) -> list[str]:
@@ -118,7 +137,7 @@ def render(result: CheckResult, *, images: Mapping[str, str] | None = None, timi
            rule_summaries: Mapping[str, str] | None = None, provenance: Mapping[str, Any] | None = None) -> str:
     """Render the summary; ``images`` maps figure ids / output paths to relative image links."""
     images = images or {}
-    lines = [_headline(result), ""]
+    lines = [_headline(result), "", *_tree_changes(result)]
     lines.append(f"figproof {result.version} re-ran the figure scripts of `{result.root}`; {_threshold(result)}. "
                  f"Isolation: {_isolation(result.runs)}.")
     lines.append("")

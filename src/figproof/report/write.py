@@ -20,7 +20,7 @@ from datetime import UTC
 from pathlib import Path
 from typing import Any, TextIO
 
-from figproof.model.findings import CheckResult, Finding, Summary
+from figproof.model.findings import CheckResult, Finding, Summary, TreeChange
 from figproof.model.records import ScriptRun
 from figproof.pipeline import Checked
 from figproof.report import github, gitlab, markdown, sarif
@@ -286,4 +286,7 @@ def result_from_json(data: dict[str, Any]) -> CheckResult:
     pending = tuple(Finding.from_json({k: v for k, v in f.items() if k in keys}) for f in data.get("pending", ()))
     return CheckResult(root=data.get("root", "."), version=data["tool"]["version"], runs=(), findings=findings,
                        summary=summary, fail_on=data.get("fail_on", "error"), notes=tuple(data.get("notes", [])),
-                       not_run=tuple(data.get("not_run", ())), pending=pending)
+                       not_run=tuple(data.get("not_run", ())), pending=pending,
+                       tree_changes=tuple(TreeChange(path=c["path"], change=c["change"])
+                                          for c in data.get("working_tree_changes", [])))
+

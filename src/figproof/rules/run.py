@@ -184,8 +184,9 @@ def write_outside_copy(run: ScriptRun, context: RunContext, knobs: Knobs) -> Ite
         seen.add(mark)
         where = f" at {ev.source}" if ev.source is not None else ""
         if ev.action == "subprocess":
-            held = ("the kernel refused any write there" if kernel
-                    else "no layer below Python held writes there on this machine")
+            held = ("the kernel layer refused its writes there, and the working-tree check reports any change "
+                    "that got through" if kernel else "no layer below Python held its writes there on this "
+                    "machine; the working-tree check reports any change it made")
             yield Hit(message=f"{run.path} starts `{ev.operation}`{where}, which names {ev.path}, the repo "
                               f"itself and not the copy the script ran on; {held}",
                       source=ev.source, key=f"subprocess:{ev.path}")
