@@ -187,8 +187,8 @@ def write_outside_copy(run: ScriptRun, context: RunContext, knobs: Knobs) -> Ite
             held = ("the kernel layer refused its writes there, and the working-tree check reports any change "
                     "that got through" if kernel else "no layer below Python held its writes there on this "
                     "machine; the working-tree check reports any change it made")
-            yield Hit(message=f"{run.path} starts `{ev.operation}`{where}, which names {ev.path}, the repo "
-                              f"itself and not the copy the script ran on; {held}",
+            yield Hit(message=f"{run.path} starts `{ev.operation}`{where}, which names {ev.path} in the repo "
+                              f"itself, outside the copy of the repo it ran on; {held}",
                       source=ev.source, key=f"subprocess:{ev.path}")
             continue
         verb = ev.operation or "write"
