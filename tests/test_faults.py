@@ -454,7 +454,8 @@ def test_report_header_names_the_repo_view() -> None:
                          summary=Summary(scripts=1, figures=0, errors=0, warnings=0, notes=0, accepted=0,
                                          passed=True))
     header = markdown.render(result).splitlines()[2]
-    assert "Isolation: ran on an overlay of the read-only repo (nothing copied), memory cap, network off." in header
+    assert ("Isolation: ran on an overlay of the read-only repo (nothing copied), memory cap, network off, "
+            "time limit." in header)
     assert json.loads(json_report.render(result))["scripts"][0]["isolation"][0] == "repo-overlay"
 
 
