@@ -30,7 +30,6 @@ from figproof.compare.files import (
     pixel_difference,
     recorded_version,
     rms_difference,
-    write_diff_image,
 )
 
 # The same figure drawn by a separate interpreter under the child's settings (Agg, fixed date, fixed salt).
@@ -255,7 +254,6 @@ def test_undecodable_and_truncated_png_are_unreadable(tmp_path: Path) -> None:
         result = compare_output(bad, good, tolerance=0)
         assert result.status == "unreadable-committed", bad
         assert result.message
-    assert write_diff_image(junk, good, tmp_path / "d.png") is None
 
 
 def test_truncated_pdf_and_empty_svg_are_unreadable(drawn: dict[str, Path], tmp_path: Path) -> None:
@@ -286,34 +284,6 @@ def test_huge_image_is_not_decoded(tmp_path: Path) -> None:
     assert result.status == "too-large"
     assert result.committed_size == (8000, 7000)
     assert compare_output(a, a, tolerance=0).status == "same"  # identical bytes need no decoding
-    assert write_diff_image(a, b, tmp_path / "d.png") is None
-
-
-def test_diff_image_panels(tmp_path: Path) -> None:
-    a, b = _pair(tmp_path)
-    ca, cb = _png(tmp_path / "c.png", a), _png(tmp_path / "r.png", b)
-    out = compare_output(ca, cb, tolerance=0, diff_to=tmp_path / "diff" / "growth.png")
-    assert out.diff_image is not None
-    with Image.open(out.diff_image) as img:
-        sheet = np.asarray(img.convert("RGB"))
-    # three panels of 60 px plus four 8-px gaps; 16-px title row plus two gaps
-    assert sheet.shape == (40 + 16 + 16, 3 * 60 + 32, 3)
-    diff_panel = sheet[24 : 24 + 40, 8 + 2 * 68 : 8 + 2 * 68 + 60].astype(int)
-    expected = np.clip(np.asarray(ImageChops.difference(Image.fromarray(a), Image.fromarray(b))).astype(int) * 10,
-                       0, 255)
-    assert np.array_equal(diff_panel, expected)
-
-
-def test_diff_image_of_different_sizes(tmp_path: Path) -> None:
-    ca = _png(tmp_path / "c.png", np.zeros((10, 20, 3), np.uint8))
-    cb = _png(tmp_path / "r.png", np.zeros((12, 16, 3), np.uint8))
-    path = write_diff_image(ca, cb, tmp_path / "d.png")
-    assert path is not None
-    with Image.open(path) as img:
-        assert img.size == (3 * 20 + 32, 12 + 32)
-
-
-# ---------------------------------------------------------------------------- notebooks
 
 
 def test_notebook_png_outputs(tmp_path: Path) -> None:
@@ -366,21 +336,6 @@ def test_load_pixels_palette_becomes_rgb(tmp_path: Path) -> None:
     assert load_pixels(path).shape == (5, 5, 3)  # as matplotlib.testing.compare._load_image converts
 
 
-def test_diff_image_shrinks_but_keeps_one_changed_pixel(tmp_path: Path) -> None:
-    a = np.full((90, 2500, 3), 200, np.uint8)
-    b = a.copy()
-    b[40, 1234] = (230, 200, 200)  # one pixel, +30 in red
-    path = write_diff_image(_png(tmp_path / "c.png", a), _png(tmp_path / "r.png", b), tmp_path / "d.png")
-    assert path is not None
-    with Image.open(path) as img:
-        sheet = np.asarray(img.convert("RGB"))
-    panel_w = -(-2500 // 3)  # 1200-px panel limit → factor 3
-    assert sheet.shape[1] == 3 * panel_w + 32
-    diff_panel = sheet[24 : 24 + 30, 8 + 2 * (panel_w + 8) : 8 + 2 * (panel_w + 8) + panel_w]
-    assert diff_panel[..., 0].max() == 255  # 30 × 10, clipped: still visible after shrinking
-    assert np.count_nonzero(diff_panel.any(axis=-1)) == 1
-
-
 def test_pillow_decompression_bomb_limits(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     # Pillow warns above Image.MAX_IMAGE_PIXELS and refuses above twice that (Pillow docs, Image.open).
     a = _png(tmp_path / "c.png", np.zeros((30, 50, 3), np.uint8))  # 1500 px
@@ -390,4 +345,3 @@ def test_pillow_decompression_bomb_limits(tmp_path: Path, monkeypatch: pytest.Mo
     monkeypatch.setattr(Image, "MAX_IMAGE_PIXELS", 500)  # 1500 > 2 × 500: Pillow refuses to open
     result = compare_output(a, b, tolerance=0)
     assert result.status == "too-large"
-    assert write_diff_image(a, b, tmp_path / "d.png") is None

@@ -93,7 +93,7 @@ def _report_flags(p: argparse.ArgumentParser) -> None:
     p.add_argument("--markdown", metavar="FILE", help="write the markdown summary")
     p.add_argument("--sarif", metavar="FILE", help="write a SARIF 2.1.0 log (for code-scanning dashboards)")
     p.add_argument("--gitlab", metavar="FILE", help="write a GitLab code-quality report")
-    p.add_argument("--images", metavar="DIR", help="write figure images for findings (simulated views, diffs)")
+    p.add_argument("--images", metavar="DIR", help="write figure images for findings (simulated colour-vision views, change views of drifted figures)")
     p.add_argument("--provenance", metavar="FILE",
                    help="write a JSON manifest: each figure file, the script that drew it, its inputs' SHA-256, "
                         "the commit and the environment")

@@ -19,7 +19,6 @@ from __future__ import annotations
 
 import base64
 import binascii
-import dataclasses
 import hashlib
 import io
 import re
@@ -29,7 +28,7 @@ from pathlib import Path
 from typing import Any, Literal, cast
 
 import numpy as np
-from PIL import Image, ImageDraw
+from PIL import Image
 
 from figproof.compare.render_diff import rendering_only
 from figproof.model.comparison import (
@@ -42,9 +41,6 @@ from figproof.model.comparison import (
 
 MAX_PIXELS = 50_000_000
 MAX_VECTOR_BYTES = 256 * 1024 * 1024
-# matplotlib's own diff images multiply the absolute difference by 10 (matplotlib.testing.compare.save_diff_image)
-DIFF_GAIN = 10
-_DIFF_PANEL_MAX = 1200  # longest side of one panel of a diff image, in pixels
 _ROWS_PER_BLOCK_PIXELS = 1 << 20  # RMS is summed over blocks of about a megapixel to bound temporaries
 
 
@@ -421,7 +417,6 @@ def compare_output(
     tolerance: float,
     path: str | None = None,
     max_pixels: int = MAX_PIXELS,
-    diff_to: Path | None = None,
     shifts: bool = False,
 ) -> OutputComparison:
     """Compare a committed figure file with the file its script regenerated.
@@ -436,8 +431,6 @@ def compare_output(
         Repo-relative name to record (default: ``committed`` as given).
     max_pixels
         Rasters larger than this are compared by bytes only (``"too-large"`` when they differ).
-    diff_to
-        When given and the rasters drift, write a diff image there and record its path.
     shifts
         Tell rendering-only differences (anti-aliasing, hinting, sub-pixel placement, see
         :mod:`figproof.compare.render_diff`) apart: status ``"rendering"`` instead of ``"drift"``.
@@ -466,12 +459,7 @@ def compare_output(
     fields = _compare_raster(committed, regenerated, tolerance=tolerance, max_pixels=max_pixels, shifts=shifts)
     fields["committed_version"] = recorded_version(committed)
     fields["regenerated_version"] = recorded_version(regenerated)
-    result = OutputComparison(**base, **fields)
-    if diff_to is not None and result.status == "drift":
-        written = write_diff_image(committed, regenerated, diff_to, max_pixels=max_pixels)
-        if written is not None:
-            result = dataclasses.replace(result, diff_image=written.as_posix())
-    return result
+    return OutputComparison(**base, **fields)
 
 
 def compare_image_bytes(
@@ -494,94 +482,6 @@ def compare_image_bytes(
     fields = _compare_raster(io.BytesIO(committed), io.BytesIO(regenerated), tolerance=tolerance,
                              max_pixels=max_pixels, shifts=shifts)
     return OutputComparison(**base, **fields)
-
-
-def _rows_over_white(x: np.ndarray, top: int, bottom: int, width: int) -> np.ndarray:
-    """Rows ``top:bottom`` of image ``x`` as opaque RGB on a white canvas ``width`` wide (page colour)."""
-    out = np.full((bottom - top, width, 3), 255, np.uint8)
-    rows = x[top:min(bottom, x.shape[0])]
-    if rows.shape[0] == 0:
-        return out
-    if rows.shape[-1] == 4:
-        # integer "over" compositing onto white, rounded: (c·a + 255·(255 − a)) / 255
-        alpha = rows[..., 3:4].astype(np.uint32)
-        rgb = (rows[..., :3].astype(np.uint32) * alpha + 255 * (255 - alpha) + 127) // 255
-        rows = rgb.astype(np.uint8)
-    out[: rows.shape[0], : rows.shape[1]] = rows
-    return out
-
-
-def _reduce(block: np.ndarray, factor: int, how: str) -> np.ndarray:
-    if factor == 1:
-        return block
-    h, w = block.shape[0] // factor, block.shape[1] // factor
-    tiles = block.reshape(h, factor, w, factor, block.shape[-1])
-    if how == "max":
-        return tiles.max(axis=(1, 3))
-    return np.rint(tiles.mean(axis=(1, 3))).astype(np.uint8)
-
-
-def write_diff_image(
-    committed: Path | bytes, regenerated: Path | bytes, out_png: Path, *, max_pixels: int = MAX_PIXELS
-) -> Path | None:
-    """Write committed | regenerated | amplified difference side by side as one PNG.
-
-    The difference panel is ``|committed − regenerated| × 10`` (clipped to 255), the
-    amplification matplotlib's own image tests use; where sizes differ, the images
-    are aligned top-left and the area only one of them covers shows as full
-    difference.  Transparent areas are shown over white.  Large images are shrunk
-    so each panel is at most 1200 px: block mean for the two images, block maximum
-    for the difference so that an isolated changed pixel stays visible.  Work is
-    done in bands of rows, so memory stays near the two decoded images.
-    Returns the path written, or None when either image cannot be decoded or is too large.
-    """
-    arrays = []
-    for item in (committed, regenerated):
-        source = io.BytesIO(item) if isinstance(item, bytes) else Path(item)
-        try:
-            w, h = _header(source)
-            if w * h > max_pixels:
-                return None
-            if isinstance(source, io.BytesIO):
-                source.seek(0)
-            arrays.append(load_pixels(source))
-        except (_Unreadable, _TooLarge):
-            return None
-    a, b = arrays
-    height, width = max(a.shape[0], b.shape[0]), max(a.shape[1], b.shape[1])
-    factor = max(1, -(-max(height, width) // _DIFF_PANEL_MAX))
-    # pad the canvas to whole blocks; the padding is white in both images, so it shows no difference
-    full_h, full_w = -(-height // factor) * factor, -(-width // factor) * factor
-    common_h, common_w = min(a.shape[0], b.shape[0]), min(a.shape[1], b.shape[1])
-    band = factor * max(1, _ROWS_PER_BLOCK_PIXELS // (full_w * factor))
-    parts: list[list[np.ndarray]] = [[], [], []]
-    for top in range(0, full_h, band):
-        bottom = min(top + band, full_h)
-        ra, rb = _rows_over_white(a, top, bottom, full_w), _rows_over_white(b, top, bottom, full_w)
-        diff = np.abs(ra.astype(np.int16) - rb).astype(np.uint16) * DIFF_GAIN
-        diff = np.minimum(diff, 255).astype(np.uint8)
-        # rows/columns inside the canvas that only one image covers
-        rows = np.arange(top, bottom)
-        one_only = (rows < height)[:, None] & ((rows >= common_h)[:, None] | (np.arange(full_w) >= common_w)[None, :])
-        one_only &= (np.arange(full_w) < width)[None, :]
-        diff[one_only] = 255
-        parts[0].append(_reduce(ra, factor, "mean"))
-        parts[1].append(_reduce(rb, factor, "mean"))
-        parts[2].append(_reduce(diff, factor, "max"))
-    panels = [Image.fromarray(np.concatenate(p, axis=0)) for p in parts]
-    gap, header = 8, 16
-    pw, ph = panels[0].width, panels[0].height
-    sheet = Image.new("RGB", (3 * pw + 4 * gap, ph + header + 2 * gap), (255, 255, 255))
-    draw = ImageDraw.Draw(sheet)
-    for i, (panel, title) in enumerate(zip(panels, ("committed", "regenerated", f"difference x{DIFF_GAIN}"),
-                                           strict=True)):
-        x = gap + i * (pw + gap)
-        sheet.paste(panel, (x, header + gap))
-        draw.text((x, 2), title, fill=(0, 0, 0))
-    out_png = Path(out_png)
-    out_png.parent.mkdir(parents=True, exist_ok=True)
-    sheet.save(out_png, format="PNG")
-    return out_png
 
 
 def notebook_png_outputs(nb_json: Mapping[str, Any]) -> dict[int, list[bytes]]:
@@ -630,5 +530,4 @@ __all__ = [
     "pixel_difference",
     "recorded_version",
     "rms_difference",
-    "write_diff_image",
 ]

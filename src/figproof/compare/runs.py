@@ -26,14 +26,9 @@ def saved_outputs(run: ScriptRun) -> list[str]:
     return list(seen)
 
 
-def _diff_name(path: str) -> str:
-    return path.replace("/", "__") + "-difference.png"
-
-
 def committed_vs_regenerated(runs: Sequence[ScriptRun], root: Path, artifacts: Path,
                              tolerance: float) -> dict[str, OutputComparison]:
-    """Compare every saved output that also exists in the user's repo; diff images go to artifacts/diffs."""
-    diffs = artifacts / "diffs"
+    """Compare every saved output that also exists in the user's repo (the report draws the change views)."""
     out: dict[str, OutputComparison] = {}
     for run in runs:
         regenerated = artifact_folder(artifacts, run.path) / "regenerated"
@@ -41,9 +36,7 @@ def committed_vs_regenerated(runs: Sequence[ScriptRun], root: Path, artifacts: P
             committed = root / path
             if path in out or not committed.is_file():
                 continue
-            diffs.mkdir(parents=True, exist_ok=True)
-            out[path] = compare_output(committed, regenerated / path, tolerance=tolerance, path=path, shifts=True,
-                                       diff_to=diffs / _diff_name(path))
+            out[path] = compare_output(committed, regenerated / path, tolerance=tolerance, path=path, shifts=True)
     return out
 
 

@@ -45,7 +45,6 @@ class OutputComparison(Serialisable):
     message: str = ""
     cell: int | None = None
     output: int | None = None
-    diff_image: str | None = None
 
 
 def kind_of(path: str | Path) -> FileKind:

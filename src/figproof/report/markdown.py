@@ -66,7 +66,7 @@ def _tree_changes(result: CheckResult) -> list[str]:
     return [*lines, ""]
 
 
-def _findings_table(findings: list[Finding], images: Mapping[str, str]) -> list[str]:
+def _findings_table(findings: list[Finding], images: Mapping[str, str], captions: Mapping[str, str]) -> list[str]:
     rows = ["| where | rule | severity | what figproof found |", "|---|---|---|---|"]
     for f in findings:
         msg = _cell(f.message)
@@ -75,7 +75,8 @@ def _findings_table(findings: list[Finding], images: Mapping[str, str]) -> list[
         if f.rule == "figure-drift":
             drifted = [p for p in images if "#" not in p and p in f.message]
             if drifted:
-                msg += f" ([committed, regenerated, difference]({images[drifted[0]]}))"
+                said = f": {_cell(captions[drifted[0]])}" if drifted[0] in captions else ""
+                msg += f" ([what changed]({images[drifted[0]]}){said})"
         rows.append(f"| `{_cell(where(f))}` | {f.rule} | {f.severity} ({f.confidence}) | {msg} |")
     return rows
 
@@ -134,8 +135,10 @@ def _provenance(manifest: Mapping[str, Any]) -> list[str]:
 
 
 def render(result: CheckResult, *, images: Mapping[str, str] | None = None, timings: bool = False,
-           rule_summaries: Mapping[str, str] | None = None, provenance: Mapping[str, Any] | None = None) -> str:
-    """Render the summary; ``images`` maps figure ids / output paths to relative image links."""
+           rule_summaries: Mapping[str, str] | None = None, provenance: Mapping[str, Any] | None = None,
+           captions: Mapping[str, str] | None = None) -> str:
+    """Render the summary; ``images`` maps figure ids / output paths to relative image links, ``captions``
+    output paths to what their change view says changed."""
     images = images or {}
     lines = [_headline(result), "", *_tree_changes(result)]
     lines.append(f"figproof {result.version} re-ran the figure scripts of `{result.root}`; {_threshold(result)}. "
@@ -144,7 +147,7 @@ def render(result: CheckResult, *, images: Mapping[str, str] | None = None, timi
     open_ = [f for f in result.findings if f.accepted is None]
     accepted = [f for f in result.findings if f.accepted is not None]
     if open_:
-        lines += ["### Findings", "", *_findings_table(open_, images), ""]
+        lines += ["### Findings", "", *_findings_table(open_, images, captions or {}), ""]
     else:
         lines += ["No open findings.", ""]
     if accepted:

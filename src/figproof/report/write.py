@@ -11,21 +11,23 @@ from __future__ import annotations
 
 import json
 import os
-import shutil
 import sys
 import time
 from collections.abc import Callable
 from dataclasses import dataclass
 from datetime import UTC
 from pathlib import Path
-from typing import Any, TextIO
+from typing import TYPE_CHECKING, Any, TextIO
 
 from figproof.model.findings import CheckResult, Finding, Summary, TreeChange
-from figproof.model.records import ScriptRun
+from figproof.model.records import FigureModel, ScriptRun
 from figproof.pipeline import Checked
 from figproof.report import github, gitlab, markdown, sarif
 from figproof.report import json as json_report
 from figproof.rules import knob_value
+
+if TYPE_CHECKING:
+    from figproof.report.change_view import Change
 
 
 class OutputError(Exception):
@@ -119,12 +121,14 @@ def write_reports(checked: Checked, request: ReportRequest, *, shown_root: str |
 
     result = checked.result if shown_root is None else replace(checked.result, root=shown_root)
     images: dict[str, str] = {}
+    captions: dict[str, str] = {}
     if request.images is not None:
-        images = write_images(checked, request.images, request.markdown.parent if request.markdown else None)
+        images, captions = write_images(checked, request.images,
+                                        request.markdown.parent if request.markdown else None)
     summaries = {rid: r.summary for rid, r in by_id().items()}
     manifest = provenance_manifest(checked)
     text = markdown.render(result, images=images, timings=request.timings, rule_summaries=summaries,
-                           provenance=manifest)
+                           provenance=manifest, captions=captions)
     if request.provenance is not None:
         _write(request.provenance, json.dumps(manifest, sort_keys=True, allow_nan=False, indent=2) + "\n")
     if request.markdown is not None:
@@ -173,11 +177,12 @@ def provenance_manifest(checked: Checked) -> dict[str, Any]:
                           environment=environment_fingerprint(freetype), date=check_date(root))
 
 
-def write_images(checked: Checked, folder: Path, relative_to: Path | None) -> dict[str, str]:
-    """Images for findings; returns figure id / output path → link relative to the markdown file.
+def write_images(checked: Checked, folder: Path, relative_to: Path | None) -> tuple[dict[str, str], dict[str, str]]:
+    """Images for findings; returns figure id / output path → link relative to the markdown file, and
+    output path → the caption of its change view.
 
     Figures with colour findings get a panel of simulated views (protan, deutan, tritan, and
-    grayscale for gray findings).
+    grayscale for gray findings); committed raster figures that drifted get a change view.
     """
     from figproof.report.images import panel_needed, write_cvd_panel
     from figproof.run.execute import artifact_folder
@@ -204,17 +209,43 @@ def write_images(checked: Checked, folder: Path, relative_to: Path | None) -> di
             except (OSError, ValueError):
                 continue
             links[fig.id] = _link(out, relative_to)
+    captions: dict[str, str] = {}
+    for path, (out, change) in change_views(checked, folder).items():
+        links[path] = _link(out, relative_to)
+        captions[path] = change.caption()
+    return links, captions
+
+
+def drifted_files(checked: Checked) -> list[tuple[str, Path, Path, FigureModel | None]]:
+    """Committed raster figures that drifted: (repo path, committed file, regenerated file, the figure's model)."""
+    from figproof.run.execute import artifact_folder
+
+    found = []
     for path, comparison in sorted(checked.context.comparisons.items()):
-        diff = getattr(comparison, "diff_image", None)
-        if comparison.status == "same" or not diff or not Path(diff).is_file():
+        if comparison.status != "drift" or comparison.kind != "raster":
             continue
-        target = folder / Path(diff).name
+        for run in checked.result.runs:
+            figure = next((f for f in run.figures if path in f.outputs), None)
+            regenerated = artifact_folder(checked.artifacts, run.path) / "regenerated" / path
+            if figure is not None or regenerated.is_file():
+                found.append((path, checked.config.root / path, regenerated, figure))
+                break
+    return found
+
+
+def change_views(checked: Checked, folder: Path, *, caption: bool = True) -> dict[str, tuple[Path, Change]]:
+    """Write a change view for every drifted committed raster figure; returns repo path → (PNG, what changed)."""
+    from figproof.report.change_view import ChangeViewError, write_change_view
+
+    written: dict[str, tuple[Path, Change]] = {}
+    for path, committed, regenerated, figure in drifted_files(checked):
+        out = folder / (path.replace("/", "__") + "-changes.png")
         try:
-            shutil.copyfile(diff, target)
-        except OSError as exc:
-            raise OutputError(f"{target}: cannot write the image ({_why(exc)}); choose a writable folder") from None
-        links[path] = _link(target, relative_to)
-    return links
+            change = write_change_view(committed, regenerated, out, figure, caption=caption)
+        except (ChangeViewError, OSError):
+            continue  # the finding still says what drifted; an unreadable file gets no picture
+        written[path] = (out, change)
+    return written
 
 
 def use_colour(stream: TextIO) -> bool:
