@@ -10,9 +10,11 @@ status=0
 figproof check \
   --json figproof-report/figproof.json \
   --markdown figproof-report/summary.md \
-  --images figproof-report/images || status=$?
+  --images figproof-report/images \
+  --html figproof-report/html || status=$?
 
-# Show the summary in the job log; the folder holds the JSON and the annotated images.
+# Show the summary in the job log; the folder holds the JSON, the images and html/index.html, the visual
+# report (it opens from the folder, no network needed).
 if [ -f figproof-report/summary.md ]; then
   cat figproof-report/summary.md
 fi

@@ -142,7 +142,7 @@ def test_github_workflow_uploads_what_it_writes() -> None:
     doc = _load(EXAMPLES / "github-workflow.yml")
     [check] = _yaml_commands(doc)
     assert check[:2] == ["figproof", "check"]
-    for flag in ("--sarif", "--json", "--markdown", "--images"):
+    for flag in ("--sarif", "--json", "--markdown", "--images", "--html"):
         assert _option(check, flag).startswith("figproof-report/")
     steps = doc["jobs"]["figproof"]["steps"]
     uses = {s.get("uses", "").split("@")[0]: s for s in steps}

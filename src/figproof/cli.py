@@ -93,7 +93,12 @@ def _report_flags(p: argparse.ArgumentParser) -> None:
     p.add_argument("--markdown", metavar="FILE", help="write the markdown summary")
     p.add_argument("--sarif", metavar="FILE", help="write a SARIF 2.1.0 log (for code-scanning dashboards)")
     p.add_argument("--gitlab", metavar="FILE", help="write a GitLab code-quality report")
-    p.add_argument("--images", metavar="DIR", help="write figure images for findings (simulated colour-vision views, change views of drifted figures)")
+    p.add_argument("--images", metavar="DIR",
+                   help="write figure images for findings (simulated colour-vision views, change views of drifted "
+                        "figures)")
+    p.add_argument("--html", metavar="DIR",
+                   help="write the visual report to DIR/index.html: the figures with their findings marked, "
+                        "change views of drifted figures, honest redraws of summaries (opens offline)")
     p.add_argument("--provenance", metavar="FILE",
                    help="write a JSON manifest: each figure file, the script that drew it, its inputs' SHA-256, "
                         "the commit and the environment")
@@ -237,7 +242,7 @@ def report_request(args: argparse.Namespace) -> ReportRequest:
         return Path(value) if value else None
 
     return ReportRequest(markdown=path("markdown"), json=path("json"), sarif=path("sarif"), gitlab=path("gitlab"),
-                         provenance=path("provenance"), images=path("images"),
+                         provenance=path("provenance"), images=path("images"), html=path("html"),
                          timings=getattr(args, "timings", False), annotations=not getattr(args, "quiet", False))
 
 
@@ -247,11 +252,13 @@ def do_check(path: Path, args: argparse.Namespace, request: ReportRequest, **opt
 
     if not path.exists():
         raise UsageError(f"{path}: no such file or folder")
-    skip = tuple(_inside(path, p) for p in (request.images, request.json, request.markdown) if p is not None)
+    skip = tuple(_inside(path, p) for p in (request.images, request.json, request.markdown, request.html)
+                 if p is not None)
     options = CheckOptions(jobs=getattr(args, "jobs", None), skip_copy=tuple(s for s in skip if s),
                            shard=getattr(args, "shard", None), changed_since=getattr(args, "changed_since", None),
                            twice=getattr(args, "twice", False), cache=not getattr(args, "no_cache", False),
-                           renders=request.images is not None or getattr(args, "twice", False),
+                           renders=request.images is not None or request.html is not None
+                           or getattr(args, "twice", False),
                            **option_overrides)  # type: ignore[arg-type]
     try:
         return check(path, options, progress=_progress(args))
@@ -351,13 +358,14 @@ def cmd_demo(args: argparse.Namespace) -> int:
     reports = base / "figproof-report"
     request = ReportRequest(json=reports / "figproof.json", markdown=reports / "summary.md",
                             images=reports / "images", sarif=reports / "figproof.sarif",
-                            provenance=reports / "provenance.json")
+                            provenance=reports / "provenance.json", html=reports / "html")
     code = run_check(repo, args, request, shown_root="demo-lab")
     verdict = "failed, as it is meant to" if code == ExitCode.FAILED else f"ended with exit code {int(code)}"
     print(f"The demo lab repo is in {repo}; its check {verdict} (a check of your repo would exit {int(code)}; "
           f"the demo itself exits 0).")
     print(f"Reports: {reports}/summary.md, {reports}/figproof.json, {reports}/figproof.sarif, "
           f"images in {reports}/images")
+    print(f"Visual report (open it in a browser): {reports}/html/index.html")
     return ExitCode.PASSED
 
 

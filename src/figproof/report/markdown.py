@@ -136,14 +136,16 @@ def _provenance(manifest: Mapping[str, Any]) -> list[str]:
 
 def render(result: CheckResult, *, images: Mapping[str, str] | None = None, timings: bool = False,
            rule_summaries: Mapping[str, str] | None = None, provenance: Mapping[str, Any] | None = None,
-           captions: Mapping[str, str] | None = None) -> str:
+           captions: Mapping[str, str] | None = None, visual: str | None = None) -> str:
     """Render the summary; ``images`` maps figure ids / output paths to relative image links, ``captions``
-    output paths to what their change view says changed."""
+    output paths to what their change view says changed; ``visual`` links the HTML report."""
     images = images or {}
     lines = [_headline(result), "", *_tree_changes(result)]
     lines.append(f"figproof {result.version} re-ran the figure scripts of `{result.root}`; {_threshold(result)}. "
                  f"Isolation: {_isolation(result.runs)}.")
     lines.append("")
+    if visual:
+        lines += [f"The figures with their findings marked on them: [visual report]({visual}).", ""]
     open_ = [f for f in result.findings if f.accepted is None]
     accepted = [f for f in result.findings if f.accepted is not None]
     if open_:

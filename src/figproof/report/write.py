@@ -17,17 +17,14 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from datetime import UTC
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, TextIO
+from typing import Any, TextIO
 
 from figproof.model.findings import CheckResult, Finding, Summary, TreeChange
-from figproof.model.records import FigureModel, ScriptRun
+from figproof.model.records import ScriptRun
 from figproof.pipeline import Checked
 from figproof.report import github, gitlab, markdown, sarif
 from figproof.report import json as json_report
 from figproof.rules import knob_value
-
-if TYPE_CHECKING:
-    from figproof.report.change_view import Change
 
 
 class OutputError(Exception):
@@ -109,6 +106,7 @@ class ReportRequest:
     gitlab: Path | None = None
     provenance: Path | None = None
     images: Path | None = None  # folder for figure images; asking for it makes the children keep renders
+    html: Path | None = None  # folder for the visual report (index.html and img/); also needs renders
     timings: bool = False  # run times in the reports (they then vary from run to run)
     annotations: bool = True  # GitHub workflow annotations on stdout, when running in GitHub Actions
 
@@ -127,8 +125,15 @@ def write_reports(checked: Checked, request: ReportRequest, *, shown_root: str |
                                         request.markdown.parent if request.markdown else None)
     summaries = {rid: r.summary for rid, r in by_id().items()}
     manifest = provenance_manifest(checked)
+    visual = None
+    if request.html is not None:
+        from figproof.report.visual import write_html
+
+        page = request.html / "index.html"
+        _write(page, write_html(checked, request.html, manifest))
+        visual = _link(page, request.markdown.parent if request.markdown else None)
     text = markdown.render(result, images=images, timings=request.timings, rule_summaries=summaries,
-                           provenance=manifest, captions=captions)
+                           provenance=manifest, captions=captions, visual=visual)
     if request.provenance is not None:
         _write(request.provenance, json.dumps(manifest, sort_keys=True, allow_nan=False, indent=2) + "\n")
     if request.markdown is not None:
@@ -209,43 +214,13 @@ def write_images(checked: Checked, folder: Path, relative_to: Path | None) -> tu
             except (OSError, ValueError):
                 continue
             links[fig.id] = _link(out, relative_to)
+    from figproof.report.visual import change_views
+
     captions: dict[str, str] = {}
     for path, (out, change) in change_views(checked, folder).items():
         links[path] = _link(out, relative_to)
         captions[path] = change.caption()
     return links, captions
-
-
-def drifted_files(checked: Checked) -> list[tuple[str, Path, Path, FigureModel | None]]:
-    """Committed raster figures that drifted: (repo path, committed file, regenerated file, the figure's model)."""
-    from figproof.run.execute import artifact_folder
-
-    found = []
-    for path, comparison in sorted(checked.context.comparisons.items()):
-        if comparison.status != "drift" or comparison.kind != "raster":
-            continue
-        for run in checked.result.runs:
-            figure = next((f for f in run.figures if path in f.outputs), None)
-            regenerated = artifact_folder(checked.artifacts, run.path) / "regenerated" / path
-            if figure is not None or regenerated.is_file():
-                found.append((path, checked.config.root / path, regenerated, figure))
-                break
-    return found
-
-
-def change_views(checked: Checked, folder: Path, *, caption: bool = True) -> dict[str, tuple[Path, Change]]:
-    """Write a change view for every drifted committed raster figure; returns repo path → (PNG, what changed)."""
-    from figproof.report.change_view import ChangeViewError, write_change_view
-
-    written: dict[str, tuple[Path, Change]] = {}
-    for path, committed, regenerated, figure in drifted_files(checked):
-        out = folder / (path.replace("/", "__") + "-changes.png")
-        try:
-            change = write_change_view(committed, regenerated, out, figure, caption=caption)
-        except (ChangeViewError, OSError):
-            continue  # the finding still says what drifted; an unreadable file gets no picture
-        written[path] = (out, change)
-    return written
 
 
 def use_colour(stream: TextIO) -> bool:
