@@ -149,6 +149,24 @@ def test_github_actions_annotations_and_step_summary(tmp_path, monkeypatch, caps
 
 
 @pytest.mark.slow
+def test_step_summary_links_the_visual_report_through_the_run_page(tmp_path, monkeypatch, capsys) -> None:
+    repo = copy("broken", tmp_path)
+    summary = tmp_path / "step-summary.md"
+    for name, value in (("GITHUB_ACTIONS", "true"), ("GITHUB_STEP_SUMMARY", str(summary)),
+                        ("GITHUB_SERVER_URL", "https://github.example"), ("GITHUB_REPOSITORY", "lab/figures"),
+                        ("GITHUB_RUN_ID", "77")):
+        monkeypatch.setenv(name, value)
+    monkeypatch.chdir(tmp_path)
+    main(["check", str(repo), "--no-cache", "--markdown", "report/summary.md", "--html", "report/html"])
+    capsys.readouterr()
+    # the job summary cannot open a file of the run; it links the run's page, where the artifact is listed
+    assert ("[visual report](https://github.example/lab/figures/actions/runs/77#artifacts) "
+            "(html/index.html in this run's report artifact)") in summary.read_text()
+    assert "[visual report](html/index.html)." in (tmp_path / "report" / "summary.md").read_text()
+    assert (tmp_path / "report" / "html" / "index.html").is_file()
+
+
+@pytest.mark.slow
 def test_sarif_and_gitlab_files(tmp_path) -> None:
     repo = copy("broken", tmp_path)
     main(["check", str(repo), "--quiet", "--sarif", str(tmp_path / "r.sarif"), "--gitlab", str(tmp_path / "g.json")])

@@ -136,16 +136,19 @@ def _provenance(manifest: Mapping[str, Any]) -> list[str]:
 
 def render(result: CheckResult, *, images: Mapping[str, str] | None = None, timings: bool = False,
            rule_summaries: Mapping[str, str] | None = None, provenance: Mapping[str, Any] | None = None,
-           captions: Mapping[str, str] | None = None, visual: str | None = None) -> str:
+           captions: Mapping[str, str] | None = None, visual: str | None = None,
+           visual_where: str | None = None) -> str:
     """Render the summary; ``images`` maps figure ids / output paths to relative image links, ``captions``
-    output paths to what their change view says changed; ``visual`` links the HTML report."""
+    output paths to what their change view says changed; ``visual`` links the HTML report (``visual_where``
+    says where to find it when the link is not the page itself)."""
     images = images or {}
     lines = [_headline(result), "", *_tree_changes(result)]
     lines.append(f"figproof {result.version} re-ran the figure scripts of `{result.root}`; {_threshold(result)}. "
                  f"Isolation: {_isolation(result.runs)}.")
     lines.append("")
     if visual:
-        lines += [f"The figures with their findings marked on them: [visual report]({visual}).", ""]
+        found_at = f" ({visual_where})" if visual_where else ""
+        lines += [f"The figures with their findings marked on them: [visual report]({visual}){found_at}.", ""]
     open_ = [f for f in result.findings if f.accepted is None]
     accepted = [f for f in result.findings if f.accepted is not None]
     if open_:

@@ -149,9 +149,22 @@ def write_reports(checked: Checked, request: ReportRequest, *, shown_root: str |
             print(line)
     summary = step_summary_path()
     if summary is not None:
+        shown = text
+        run_page = github_run_page()
+        if visual and run_page:
+            # the job summary cannot open a file of the run: it links the run's page, which lists the artifacts
+            shown = markdown.render(result, images=images, timings=request.timings, rule_summaries=summaries,
+                                    provenance=manifest, captions=captions, visual=run_page,
+                                    visual_where=f"{visual} in this run's report artifact")
         with open(summary, "a", encoding="utf-8") as fh:
-            fh.write(markdown.fit(text) + "\n")
+            fh.write(markdown.fit(shown) + "\n")
     return text
+
+
+def github_run_page() -> str | None:
+    """The page of this GitHub Actions run (it lists the run's artifacts), from the variables Actions sets."""
+    server, repo, run = (os.environ.get(k) for k in ("GITHUB_SERVER_URL", "GITHUB_REPOSITORY", "GITHUB_RUN_ID"))
+    return f"{server}/{repo}/actions/runs/{run}#artifacts" if server and repo and run else None
 
 
 def _link(image: Path, relative_to: Path | None) -> str:
