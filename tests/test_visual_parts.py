@@ -134,3 +134,14 @@ def test_page_folds_accepted_findings_away_and_parses_strictly() -> None:
     assert marks == [(str(round(2 * x0)), str(round(960 - 2 * y1)), str(round(2 * (x1 - x0))),
                       str(round(2 * (y1 - y0))))]
     assert text.count('data-accepted="yes"') == 1
+
+
+def test_close_markers_match_a_kd_tree() -> None:
+    from scipy.spatial import cKDTree
+
+    from figproof.report.marks import _close_pairs
+
+    rng = np.random.default_rng(11)
+    xy = rng.uniform(0, 400, (3000, 2))
+    pairs = cKDTree(xy).query_pairs(3.0, output_type="ndarray")  # scipy's reference neighbour search
+    assert _close_pairs(xy, 3.0).tolist() == np.unique(pairs.ravel()).tolist()

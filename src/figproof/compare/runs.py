@@ -46,7 +46,6 @@ def other_writers(runs: Sequence[ScriptRun], root: Path, artifacts: Path,
 
     Keyed by script, then path (the first writer's comparison is in :func:`committed_vs_regenerated`).
     """
-    diffs = artifacts / "diffs"
     first: dict[str, str] = {}
     out: dict[str, dict[str, OutputComparison]] = {}
     for run in runs:
@@ -56,10 +55,8 @@ def other_writers(runs: Sequence[ScriptRun], root: Path, artifacts: Path,
             committed = root / path
             if writer == run.path or not committed.is_file():
                 continue
-            diffs.mkdir(parents=True, exist_ok=True)
-            name = run.path.replace("/", "__") + "--" + _diff_name(path)
             out.setdefault(run.path, {})[path] = compare_output(committed, regenerated / path, tolerance=tolerance,
-                                                                path=path, shifts=True, diff_to=diffs / name)
+                                                                path=path, shifts=True)
     return out
 
 

@@ -54,12 +54,19 @@ def _map_colors(rgb: np.ndarray, convert: object) -> np.ndarray:
     return out8[inverse.reshape(-1)].reshape(rgb.shape)
 
 
-def simulated_views(image: Image.Image, *, gray: bool, severity: float) -> list[tuple[str, Image.Image]]:
-    """The labelled views of one RGB image: original, protan, deutan, tritan (and grayscale)."""
+CVD_KINDS = ("protan", "deutan", "tritan")
+
+
+def simulated_views(image: Image.Image, *, gray: bool, severity: float,
+                    kinds: tuple[str, ...] = CVD_KINDS) -> list[tuple[str, Image.Image]]:
+    """The labelled views of one RGB image: original, the simulated ``kinds`` (protan, deutan, tritan by
+    default) and grayscale when ``gray``."""
     rgb = np.asarray(image.convert("RGB"), dtype=np.uint8)
     sev = cs.check_severity(severity)
     views = [("Original", image.convert("RGB"))]
     for kind, name in (("protan", "Protan"), ("deutan", "Deutan"), ("tritan", "Tritan")):
+        if kind not in kinds:
+            continue
         sim = _map_colors(rgb, lambda c, k=kind: cs.simulate_cvd(c, k, sev))
         views.append((f"{name} (simulated, severity {sev:g})", Image.fromarray(sim, "RGB")))
     if gray:

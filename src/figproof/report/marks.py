@@ -25,6 +25,7 @@ Box = tuple[float, float, float, float]
 _PAD = 4.0  # pixels between a mark and its outline
 _HEX = re.compile(r"#[0-9a-fA-F]{6}\b")
 _MAX_BOXES = 12
+_MAX_POINTS = 20000  # markers looked at for the overlap outlines of one point set
 
 
 def _hex(rgba: Iterable[float]) -> str:
@@ -109,10 +110,30 @@ def clipped(ax: Axes) -> list[Box]:
     return out
 
 
+def _close_pairs(xy: np.ndarray, radius: float) -> np.ndarray:
+    """Indices of points with a neighbour closer than ``radius`` (exact: distances within grid neighbourhoods).
+
+    Points are put in square cells of side ``radius``; two points closer than ``radius`` lie in the same or
+    adjacent cells, so only those pairs are measured.
+    """
+    cells = np.floor(xy / radius).astype(np.int64)
+    order = np.lexsort((cells[:, 1], cells[:, 0]))
+    buckets: dict[tuple[int, int], list[int]] = {}
+    for i in order.tolist():
+        buckets.setdefault((int(cells[i, 0]), int(cells[i, 1])), []).append(i)
+    close: set[int] = set()
+    for (cx, cy), members in buckets.items():
+        near = [j for dx in (-1, 0, 1) for dy in (-1, 0, 1) for j in buckets.get((cx + dx, cy + dy), ())]
+        a, b = xy[members], xy[near]
+        d2 = ((a[:, None, :] - b[None, :, :]) ** 2).sum(axis=-1)
+        same = np.asarray(members)[:, None] == np.asarray(near)[None, :]
+        hit = (d2 < radius * radius) & ~same
+        close.update(np.asarray(members)[hit.any(axis=1)].tolist())
+    return np.array(sorted(close), dtype=np.int64)
+
+
 def overlapping(ax: Axes, dpi: float) -> list[Box]:
     """Boxes around groups of markers that overlap a neighbour closer than the marker radius."""
-    from scipy.spatial import cKDTree
-
     out: list[Box] = []
     for pts in ax.points:
         px, py = np.asarray(pts.px, float), np.asarray(pts.py, float)
@@ -122,26 +143,38 @@ def overlapping(ax: Axes, dpi: float) -> list[Box]:
         sizes = np.asarray(pts.sizes, float)
         radius = float(np.sqrt(np.median(sizes)) / 2.0 * dpi / 72.0) if sizes.size else 3.0
         xy = np.column_stack([px[ok], py[ok]])
-        pairs = cKDTree(xy).query_pairs(max(radius, 0.5), output_type="ndarray")
-        if not len(pairs):
-            continue
-        involved = np.unique(pairs.ravel())
-        out += _clusters(xy[involved], 4.0 * max(radius, 1.0))
+        if len(xy) > _MAX_POINTS:  # an outline needs no more: every k-th point, so the same check marks the same
+            xy = xy[:: -(-len(xy) // _MAX_POINTS)]
+        involved = _close_pairs(xy, max(radius, 0.5))
+        if involved.size:
+            out += _clusters(xy[involved], 4.0 * max(radius, 1.0))
     return out
 
 
 def _clusters(xy: np.ndarray, reach: float) -> list[Box]:
-    """Boxes around groups of points within ``reach`` of each other (single linkage on a grid)."""
-    from scipy import ndimage
+    """Boxes around groups of points whose grid cells (side ``reach``) touch one another."""
+    cells = {(int(a), int(b)) for a, b in np.floor(xy / reach).astype(np.int64)}
+    parent = {c: c for c in cells}
 
-    cells = np.floor((xy - xy.min(axis=0)) / reach).astype(int)
-    grid = np.zeros(tuple(cells.max(axis=0) + 1), bool)
-    grid[cells[:, 0], cells[:, 1]] = True
-    labels, count = ndimage.label(grid, structure=np.ones((3, 3)))
+    def root(c: tuple[int, int]) -> tuple[int, int]:
+        while parent[c] != c:
+            parent[c] = parent[parent[c]]
+            c = parent[c]
+        return c
+
+    for cx, cy in cells:
+        for dx in (-1, 0, 1):
+            for dy in (-1, 0, 1):
+                other = (cx + dx, cy + dy)
+                if other in parent:
+                    parent[root(other)] = root((cx, cy))
+    keys = np.floor(xy / reach).astype(np.int64)
+    groups: dict[tuple[int, int], list[int]] = {}
+    for i, (a, b) in enumerate(keys.tolist()):
+        groups.setdefault(root((a, b)), []).append(i)
     out = []
-    for k in range(1, count + 1):
-        sel = labels[cells[:, 0], cells[:, 1]] == k
-        box = _around(xy[sel, 0], xy[sel, 1], reach / 4 + _PAD)
+    for members in sorted(groups.values()):
+        box = _around(xy[members, 0], xy[members, 1], reach / 4 + _PAD)
         if box is not None:
             out.append(box)
     return out

@@ -22,9 +22,7 @@ from figproof.model.records import FigureModel, ScriptRun
 from figproof.pipeline import Checked
 from figproof.report import html
 from figproof.report.change_view import Change
-from figproof.report.images import COLOUR_RULES, GRAY_RULES, simulated_views
-
-_VISION_FILES = ("protan", "deutan", "tritan", "gray")
+from figproof.report.images import COLOUR_RULES, CVD_KINDS, simulated_views
 
 
 def _safe(name: str) -> str:
@@ -55,21 +53,40 @@ def _drift_owner(finding: Finding, figures: list[FigureModel]) -> FigureModel | 
     return None
 
 
+def _vision_kinds(findings: list[Finding]) -> tuple[tuple[str, ...], bool]:
+    """Which simulated views the colour findings ask for: the deficiencies a finding names, and grayscale.
+
+    A colour-vision finding names the vision it fails under (all three when it names none); a grayscale
+    finding, a colour map's uneven lightness and a low contrast are seen in grayscale.
+    """
+    kinds: set[str] = set()
+    gray = False
+    for f in findings:
+        if f.accepted is not None or f.rule not in COLOUR_RULES:
+            continue
+        if f.rule == "colours-confusable-cvd":
+            named = {k for k in CVD_KINDS if k in f.message}
+            kinds |= named or set(CVD_KINDS)
+        else:
+            gray = True
+    return tuple(k for k in CVD_KINDS if k in kinds), gray
+
+
 def _vision(figure: FigureModel, rendering: Path, img: Path, findings: list[Finding],
             severity: float) -> tuple[html.View, ...]:
-    rules = {f.rule for f in findings if f.accepted is None}
-    if not rules & set(COLOUR_RULES):
+    kinds, gray = _vision_kinds(findings)
+    if not kinds and not gray:
         return ()
     with Image.open(rendering) as opened:
         opened.load()
         rgba = opened.convert("RGBA")
     flat = Image.new("RGBA", rgba.size, (255, 255, 255, 255))
     flat.alpha_composite(rgba)
-    views = simulated_views(flat.convert("RGB"), gray=bool(rules & set(GRAY_RULES)), severity=severity)
+    views = simulated_views(flat.convert("RGB"), gray=gray, severity=severity, kinds=kinds)
     out = []
-    for (label, view), name in zip(views[1:], _VISION_FILES, strict=False):
+    for (label, view), name in zip(views[1:], [*kinds, "gray"], strict=False):
         target = img / f"{_safe(figure.id)}-{name}.png"
-        view.save(target, format="PNG")
+        view.save(target, format="PNG", compress_level=1)  # fast; the report is an artifact, not an archive
         out.append(html.View(label=label, src=f"img/{target.name}"))
     return tuple(out)
 
@@ -83,9 +100,7 @@ def write_html(checked: Checked, folder: Path, manifest: Mapping[str, Any]) -> s
 
     folder = Path(folder)
     img = folder / "img"
-    if img.exists():
-        shutil.rmtree(img)
-    img.mkdir(parents=True)
+    img.mkdir(parents=True, exist_ok=True)  # files are overwritten by name; nothing else in the folder is touched
     result = checked.result
     severity = knob_value(checked.config.rules, "colours-confusable-cvd", "cvd_severity")
     drifted = {path: (committed, regenerated) for path, committed, regenerated, _ in drifted_files(checked)}
