@@ -138,7 +138,7 @@ def test_line_markers_are_not_counted_twice() -> None:
     ln = line(x, y, marker="o")
     markers = points(x, y, kind="line")
     hits = clips(axes(lines=[ln], points=[markers]))
-    assert [h.message for h in hits] == ["1 of 3 line vertices (33%) lies above the y-limit 1 and is not drawn"]
+    assert [h.message for h in hits] == ["1 of 3 points along the lines (33%) lies above the y-limit 1 and is not drawn"]
 
 
 def test_marker_only_lines_count_as_points() -> None:
@@ -152,7 +152,7 @@ def test_a_time_series_cut_only_along_x_is_a_possible_warning() -> None:
     ln = line(t, np.sin(t) * 0.4 + 0.5)
     (hit,) = clips(axes(xlim=(2, 8), ylim=(0, 1), lines=[ln]))
     assert hit.severity == "warning" and hit.confidence == "possible"
-    assert hit.message.startswith("4 of 11 line vertices (36%) lie outside the view limits")
+    assert hit.message.startswith("4 of 11 points along the lines (36%) lie outside the view limits")
     # the same line cut along y as well stays an error of the rule's default severity
     (hit,) = clips(axes(xlim=(2, 8), ylim=(0, 0.6), lines=[ln]))
     assert hit.severity is None

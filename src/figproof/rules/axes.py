@@ -165,7 +165,7 @@ def _families(ax: Axes) -> list[_Family]:
         steps = np.diff(x[np.isfinite(x)])
         monotonic.append(bool(steps.size and (np.all(steps >= 0) or np.all(steps <= 0))))
     build("point", "points", pts)
-    build("line vertex", "line vertices", lines, tuple(monotonic))
+    build("point along the lines", "points along the lines", lines, tuple(monotonic))
 
     tops: list[tuple[np.ndarray, np.ndarray, Source | None]] = []
     bases: list[tuple[np.ndarray, np.ndarray, Source | None]] = []
