@@ -50,3 +50,10 @@ def test_fires(name: str, found: dict[str, list]) -> None:
     raised = {f.rule for f in found[name]}
     missing = [r for r in _rules(name) if r not in raised]
     assert not missing, f"{name}: {missing} not raised; got {[(f.rule, f.message) for f in found[name]]}"
+
+
+@pytest.mark.slow
+def test_errorbar_series_are_named_by_their_legend_labels(found: dict[str, list]) -> None:
+    # the legend names each errorbar container; the clash is told in those names, not as bare hex lines
+    msg = next(f.message for f in found["fires_legend_errorbar_lines.py"] if f.rule == "colours-confusable-cvd")
+    assert "'mineral fertiliser'" in msg and "'no amendment'" in msg, msg

@@ -7,6 +7,7 @@ artists while they work).
 
 from __future__ import annotations
 
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
@@ -216,10 +217,13 @@ class _AxesExtractor:
         centers_xy = None
         if data_line is not None:
             centers_xy = np.asarray(data_line.get_xydata(), float)
+            # the legend names the container, not its data line: the series carries the container's label
+            named = _label(data_line) or _label(c)
             if data_line.get_marker() not in NO_MARKERS and self.attached(data_line):
-                self.points.append(_line_points(self.ax, data_line, self.order.get(id(data_line))))
+                marks = _line_points(self.ax, data_line, self.order.get(id(data_line)))
+                self.points.append(replace(marks, label=marks.label or named))
             if data_line.get_linestyle() not in ("None", "", " ") and self.attached(data_line):
-                self.lines.append(_line(self.ax, data_line, "data"))
+                self.lines.append(replace(_line(self.ax, data_line, "data"), label=named))
         for col in barcols:
             if not self.attached(col):
                 continue
@@ -476,9 +480,14 @@ def _handle_color(handle: Any) -> RGBA | None:
     try:
         if isinstance(handle, Line2D):
             return _rgba(handle.get_color())
-        fc = handle.get_facecolor()
-        arr = np.asarray(fc, float)
-        return _rgba(arr[0] if arr.ndim == 2 and len(arr) else arr)
+        for get in (handle.get_facecolor, getattr(handle, "get_edgecolor", None)):
+            if get is None:
+                continue
+            arr = np.asarray(get(), float)
+            arr = arr[0] if arr.ndim == 2 and len(arr) else arr
+            if arr.size == 4 and arr[3] > 0.0:
+                return _rgba(arr)
+        return None
     except (AttributeError, ValueError, TypeError, IndexError):
         return None
 
