@@ -33,9 +33,12 @@ def _color_at(artist: Any, event: Any) -> np.ndarray | None:
     """The colour ``artist`` paints at the event's point, or None when it does not cover it."""
     from matplotlib.collections import Collection
     from matplotlib.image import AxesImage
+    from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
 
     try:
+        if isinstance(artist, Line2D):
+            return _line_color_at(artist, event)
         if isinstance(artist, AxesImage):
             if not artist.get_window_extent().contains(event.x, event.y):
                 return None
@@ -73,6 +76,38 @@ def _color_at(artist: Any, event: Any) -> np.ndarray | None:
     return None
 
 
+THICK_LINE = 3.0  # points: a line this wide is a surface marks sit on (seaborn's inner box of a violin)
+
+
+def _line_color_at(line: Any, event: Any) -> np.ndarray | None:
+    """A thick solid line's colour where its stroke covers the event's point (within half its width)."""
+    from matplotlib.colors import to_rgba
+
+    width = float(line.get_linewidth())
+    if width < THICK_LINE or line.get_linestyle() not in ("-", "solid"):
+        return None
+    xy = np.ma.filled(np.ma.asarray(line.get_xydata(), float), np.nan).reshape(-1, 2)
+    if xy.shape[0] < 2:
+        return None
+    pts = line.get_transform().transform(xy)
+    a, b = pts[:-1], pts[1:]
+    ok = ~(np.isnan(a).any(axis=1) | np.isnan(b).any(axis=1))
+    a, b = a[ok], b[ok]
+    if a.shape[0] == 0:
+        return None
+    p = np.array([event.x, event.y], float)
+    ab = b - a
+    length2 = np.maximum((ab * ab).sum(axis=1), 1e-12)
+    t = np.clip(((p - a) * ab).sum(axis=1) / length2, 0.0, 1.0)
+    gap = np.hypot(*(a + t[:, None] * ab - p).T)
+    half = width * line.figure.dpi / 72.0 / 2.0
+    if float(gap.min()) > half:
+        return None
+    rgba = np.asarray(to_rgba(line.get_color()), float)
+    alpha = line.get_alpha()
+    return rgba if alpha is None else np.r_[rgba[:3], rgba[3] * alpha]
+
+
 def backdrop_at(ax: Any, x: float, y: float, below: float, skip: Any = None) -> RGBA | None:
     """The opaque colour beneath display point (x, y) of ``ax`` from the artists drawn before z-order ``below``.
 
@@ -81,12 +116,13 @@ def backdrop_at(ax: Any, x: float, y: float, below: float, skip: Any = None) -> 
     """
     from matplotlib.collections import Collection
     from matplotlib.image import AxesImage
+    from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
 
     event = _event(ax, x, y)
     children = [(float(a.get_zorder()), i, a) for i, a in enumerate(ax.get_children())
                 if a is not skip and a is not ax.patch and a.get_visible()
-                and isinstance(a, (AxesImage, Patch, Collection)) and float(a.get_zorder()) <= below]
+                and isinstance(a, (AxesImage, Patch, Collection, Line2D)) and float(a.get_zorder()) <= below]
     if ax.get_legend() is not None:
         children = [c for c in children if c[2] is not ax.get_legend()]
     stack = []

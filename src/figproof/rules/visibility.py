@@ -195,6 +195,21 @@ def _color_scores(colors: np.ndarray, background: np.ndarray) -> np.ndarray:
     return score
 
 
+def _backdrops(ps: PointSet, where: np.ndarray, background: np.ndarray) -> list[tuple[np.ndarray, np.ndarray]]:
+    """The points of ``where`` grouped by what lies beneath them (the child's backdrop, else the axes face).
+
+    A white median dot on a violin's inner box sits on the box, not on the axes face.
+    """
+    drops = np.asarray(ps.backdrops, float)
+    if drops.ndim != 2 or drops.shape != (ps.x.size, 4) or where.size == 0:
+        return [(background, np.arange(where.size))]
+    under = np.tile(np.r_[background[:3], 1.0], (where.size, 1))
+    found = ~np.isnan(drops[where]).any(axis=1)
+    under[found, :3] = drops[where][found, :3]
+    uniq, inv = np.unique(under, axis=0, return_inverse=True)
+    return [(uniq[k], np.flatnonzero(inv.ravel() == k)) for k in range(len(uniq))]
+
+
 def _faint(ps: PointSet, keep: np.ndarray, background: np.ndarray, limit: float) -> tuple[np.ndarray, float]:
     """Per drawn point: is the marker (face and edge) nearly invisible over the background? Also its lowest alpha."""
     where = np.flatnonzero(keep)
@@ -207,9 +222,10 @@ def _faint(ps: PointSet, keep: np.ndarray, background: np.ndarray, limit: float)
             continue
         rows = rows.reshape(-1, 4)
         seen_any = True
-        # matplotlib cycles a short colour list over the points: score the rows once, then index
+        # matplotlib cycles a short colour list over the points: score the rows once per backdrop, then index
         pick = where % len(rows)
-        best = np.maximum(best, _color_scores(rows, background)[pick])
+        for under, members in _backdrops(ps, where, background):
+            best[members] = np.maximum(best[members], _color_scores(rows, under)[pick[members]])
         alpha = np.maximum(alpha, np.nan_to_num(rows[:, 3], nan=0.0)[pick])
     if not seen_any:
         return np.zeros(where.size, dtype=bool), 1.0
