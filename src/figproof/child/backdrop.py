@@ -86,7 +86,7 @@ def _line_color_at(line: Any, event: Any) -> np.ndarray | None:
     width = float(line.get_linewidth())
     if width < THICK_LINE or line.get_linestyle() not in ("-", "solid"):
         return None
-    xy = np.ma.filled(np.ma.asarray(line.get_xydata(), float), np.nan).reshape(-1, 2)
+    xy: np.ndarray = np.ma.filled(np.ma.asarray(line.get_xydata(), float), np.nan).reshape(-1, 2)
     if xy.shape[0] < 2:
         return None
     pts = line.get_transform().transform(xy)
