@@ -157,3 +157,58 @@ def test_without_pypdfium2_a_pdf_reference_names_the_extra(tmp_path, monkeypatch
     with pytest.raises(ReferenceError, match=r"^figure1\.pdf: PDF references need the optional extra 'pdf' "
                                              r"\(pip install 'figproof\[pdf\]'\), or export the page as PNG$"):
         pdf_pages(tmp_path / "figure1.pdf")
+
+
+# --------------------------------------------------------------------------- the change view
+
+GROWTH_T = list(range(8))
+GROWTH_OD = [0.05, 0.09, 0.18, 0.35, 0.61, 0.88, 1.02, 1.08]
+
+
+def _growth(od: list[float], dpi: int = 100) -> tuple[Image.Image, list[tuple[float, float]]]:
+    """The growth curve and where matplotlib puts each point (image pixels, top-left origin; its transData)."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    fig, ax = plt.subplots(figsize=(4, 3), dpi=dpi)
+    ax.plot(GROWTH_T, od, "o-")
+    ax.set_xlabel("time (h)")
+    ax.set_ylabel("OD600")
+    ax.set_ylim(0, 1.15)
+    fig.canvas.draw()
+    height = fig.bbox.height
+    where = [(float(x), float(height - y)) for x, y in ax.transData.transform(list(zip(GROWTH_T, od, strict=True)))]
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png")
+    plt.close(fig)
+    return _img(buf.getvalue()), where
+
+
+def test_a_reference_as_a_journal_returns_it_shows_no_change(tmp_path) -> None:
+    from figproof.deposit.references import change_view
+
+    page, _ = _growth(GROWTH_OD)
+    submitted, _ = _growth(GROWTH_OD, dpi=300)
+    returned = _jpeg(submitted.crop((3, 3, submitted.width - 3, submitted.height - 3)).resize((700, 525)), 40)
+    placed, change = change_view(picture("Figure 1.jpg", returned), page, tmp_path / "view.png")
+    assert placed.size == page.size and change.changed == 0 and change.caption() == "nothing changed"
+
+
+def test_a_moved_point_is_outlined_where_matplotlib_put_it_in_both_figures(tmp_path) -> None:
+    from figproof.deposit.references import change_view
+
+    moved = list(GROWTH_OD)
+    moved[5] = 0.5
+    page, now = _growth(GROWTH_OD)
+    submitted, then = _growth(moved, dpi=300)
+    _, change = change_view(picture("Figure 1.png", submitted), page, tmp_path / "view.png")
+    assert change.regions, "the moved point is a changed region"
+    was = (then[5][0] / 3, then[5][1] / 3)  # drawn at 300 dpi, the regenerated figure at 100
+    assert all(any(x0 <= x <= x1 and y0 <= y <= y1 for x0, y0, x1, y1 in change.regions)
+               for x, y in (now[5], was)), (change.regions, now[5], was)
+    # the unchanged points are not outlined: only the point and its two line segments differ
+    assert not any(x0 <= x <= x1 and y0 <= y <= y1 for x0, y0, x1, y1 in change.regions for x, y in now[:3])
+    with Image.open(tmp_path / "view.png") as view:
+        assert view.width == page.width  # the product's change view of the regenerated figure, caption below

@@ -52,13 +52,13 @@ def _zip(path: Path, members: dict[str, bytes]) -> Path:
     return path
 
 
-def _figure_as_submitted(folder: Path) -> Image.Image:
-    """fig1 drawn by its own code at print resolution, as the authors submitted it."""
+def _figure_as_submitted(folder: Path, data: bytes = GROWTH) -> Image.Image:
+    """fig1 drawn by its own code at print resolution (from ``data``), as the authors submitted it."""
     import os
     import runpy
 
     (folder / "data").mkdir(parents=True)
-    (folder / "data/growth.csv").write_bytes(GROWTH)
+    (folder / "data/growth.csv").write_bytes(data)
     (folder / "draw.py").write_text(PLOT.format(dpi=300, out="submitted.png"))
     here = os.getcwd()
     try:
@@ -124,6 +124,52 @@ def test_a_deposit_is_explained_matched_and_reported(tmp_path, monkeypatch, caps
     assert not list(temp.iterdir())
 
 
+def _local_page(page: Path) -> str:
+    """The page's text, after checking it is strict HTML5 and links nothing outside its folder that is missing."""
+    import html as htmlmod
+    import re
+
+    import html5lib
+
+    text = page.read_text(encoding="utf-8")
+    html5lib.HTMLParser(strict=True).parse(text)  # html5lib, a conforming HTML5 parser: raises on any parse error
+    for link in re.findall(r'(?:src|href)="([^"]+)"', text):
+        assert not re.match(r"^[a-z]+:|^//", link), f"{link} leaves the report folder"
+        if not link.startswith("#"):
+            assert (page.parent / htmlmod.unescape(link)).is_file(), link
+    return text
+
+
+@pytest.mark.slow
+def test_a_figure_that_differs_gets_the_change_view_in_markdown_json_and_html(tmp_path, monkeypatch) -> None:
+    temp = tmp_path / "tmp"
+    temp.mkdir()
+    monkeypatch.setenv("TMPDIR", str(temp))
+    archive = _zip(tmp_path / "growth-study.zip", {k: v for k, v in DEPOSIT.items()
+                                                   if k in ("growth/fig1_growth.py", "growth/data/growth.csv")})
+    refs = tmp_path / "references"
+    refs.mkdir()
+    moved = GROWTH.replace(b"5,0.88", b"5,0.50")  # the submitted figure was drawn from other data at hour 5
+    _figure_as_submitted(tmp_path / "authors", moved).save(refs / "Figure 1.png")
+    md, js, site = tmp_path / "report/replication.md", tmp_path / "report/replication.json", tmp_path / "site"
+    code = main(["check", str(archive), "--reference", str(refs), "--markdown", str(md), "--json", str(js),
+                 "--html", str(site), "--quiet"])
+    assert code == 1
+    (ref,) = json.loads(js.read_text())["references"]
+    assert (ref["verdict"], ref["regenerated"]) == ("differs", "fig1_growth.py#1")
+    assert (md.parent / ref["change_view"]).is_file() and ref["change_view"].startswith("changes/")
+    assert ref["change_caption"].endswith("% of pixels") and ref["change_caption"] != "nothing changed"
+    assert f"[what changed]({ref['change_view']}): {ref['change_caption']}" in md.read_text()
+    text = _local_page(site / "index.html")
+    assert text.index('id="environment"') < text.index('id="references"') < text.index('id="regenerated"') \
+        < text.index('id="run-log"') < text.index('id="provenance"') < text.index('id="letter"')
+    assert "NOT REPRODUCED" in text and "<code>data/growth.csv</code>" in text
+    # the issue-15 change view and its switch: what changed, the figure as submitted, the regenerated figure
+    assert text.count("<div class=\"drift\" data-switch>") == 1 and text.count('data-view="') == 3
+    assert "We could not reproduce Figure 1.png." in text
+    assert not list(temp.iterdir())
+
+
 @pytest.mark.slow
 def test_a_batch_reports_each_deposit_and_a_refused_one_does_not_stop_the_others(tmp_path, monkeypatch,
                                                                                   capsys) -> None:
@@ -146,6 +192,12 @@ def test_a_batch_reports_each_deposit_and_a_refused_one_does_not_stop_the_others
     assert "climbs out of the deposit" in rows["study-b"]["problem"] and rows["study-b"]["folder"] is None
     assert (out / "study-a/replication.md").is_file() and (out / "study-c/replication.json").is_file()
     assert "| `study-b` | **not checked**" in (out / "index.md").read_text()
+    # the index links each deposit's HTML report, which opens offline
+    assert rows["study-a"]["html"] == "study-a/replication.html" and rows["study-b"]["html"] is None
+    assert "[the visual report](study-c/replication.html)" in (out / "index.md").read_text()
+    index_page = _local_page(out / "index.html")
+    assert 'href="study-a/replication.html"' in index_page and 'href="study-c/replication.html"' in index_page
+    assert "REPRODUCED" in _local_page(out / "study-a/replication.html")
     assert not (tmp_path / "escape.py").exists() and not list(temp.iterdir())
 
 

@@ -13,19 +13,20 @@ from __future__ import annotations
 import hashlib
 import shutil
 import sys
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, replace
 from pathlib import Path
 
 from figproof import __version__
 from figproof.deposit import environment, references, replication
 from figproof.deposit.unpack import DepositError, deposit_name, is_archive, opened
-from figproof.model.records import ScriptRun
+from figproof.model.records import FigureModel, ScriptRun
 from figproof.pipeline import Checked, CheckOptions, check
 from figproof.report.write import ReportRequest, write_text
 
 # exit codes, as figproof.cli.ExitCode names them (this module may not import the command line)
 REPRODUCED, NOT_REPRODUCED, REFUSED = 0, 1, 5
+REPLICATION_HTML = "replication.html"  # a batch's page per deposit, beside replication.md
 
 Progress = Callable[[ScriptRun, int, int], None]
 
@@ -89,27 +90,37 @@ def _environment_note(name: str, found: environment.Survey) -> str:
     return f"figproof: {name}: " + "; ".join(parts)
 
 
-def replicate(path: Path, run: DepositRun, out_dir: Path | None, progress: Progress | None = None
-              ) -> replication.Replication:
-    """Unpack (or open) one deposit, survey it, check it and compare it with the references.
+@dataclass(frozen=True, slots=True, kw_only=True)
+class Outputs:
+    """Where one deposit's report files go besides the markdown and JSON (None: not written)."""
 
-    ``out_dir`` receives the change views (None: none are written).
-    """
+    changes: Path | None = None  # the folder of change views the markdown and JSON link
+    html: Path | None = None  # the HTML page; its images go into img/ beside it
+
+
+def replicate(path: Path, run: DepositRun, out: Outputs, progress: Progress | None = None
+              ) -> replication.Replication:
+    """Unpack (or open) one deposit, survey it, check it, compare it with the references and write the change
+    views and the HTML page that ``out`` asks for (the caller writes the markdown and JSON)."""
     name = deposit_name(path.resolve())
     with opened(path) as root:
         found = _survey(root)
         _say(run, _environment_note(name, found))
         options = CheckOptions(jobs=run.jobs, twice=run.twice, cache=False, renders=True, deposit=True,
-                               skip_copy=_skip(root, run, out_dir))
+                               skip_copy=_skip(root, run, out))
         checked = check(root, options, progress=progress)
     try:
-        return _replication(name, path, checked, found, run, out_dir)
+        pictures = checked.artifacts / "report-pictures"
+        rep = _replication(name, path, checked, found, run, pictures)
+        _publish(rep, pictures, out)
+        return rep
     finally:
         shutil.rmtree(checked.artifacts, ignore_errors=True)
 
 
-def _skip(root: Path, run: DepositRun, out_dir: Path | None) -> tuple[str, ...]:
-    wanted_paths = (run.reports.images, run.reports.json, run.reports.markdown, out_dir)
+def _skip(root: Path, run: DepositRun, out: Outputs) -> tuple[str, ...]:
+    wanted_paths = (run.reports.images, run.reports.json, run.reports.markdown, run.reports.html, out.changes,
+                    out.html)
     return tuple(s for s in (_inside(root, p) for p in wanted_paths if p is not None) if s)
 
 
@@ -121,50 +132,119 @@ def _inside(root: Path, p: Path) -> str | None:
 
 
 def _replication(name: str, path: Path, checked: Checked, found: environment.Survey, run: DepositRun,
-                 out_dir: Path | None) -> replication.Replication:
+                 pictures: Path) -> replication.Replication:
+    """The deposit's replication record; the pictures its reports show are written into ``pictures``."""
     from figproof.report.provenance import environment_fingerprint
     from figproof.run.execute import artifact_folder
 
     runs = checked.result.runs
     regenerated: list[references.Picture] = []
     figures: list[replication.Regenerated] = []
+    renders: dict[str, tuple[Path, FigureModel]] = {}
     for r in runs:
         for fig in r.figures:
             figures.append(replication.Regenerated(id=fig.id, script=r.path, outputs=fig.outputs))
             if fig.render is not None:
-                pic = references.regenerated_picture(fig.id, artifact_folder(checked.artifacts, r.path) / "renders"
-                                                     / fig.render)
+                render = artifact_folder(checked.artifacts, r.path) / "renders" / fig.render
+                pic = references.regenerated_picture(fig.id, render)
                 if pic is not None:
                     regenerated.append(pic)
+                    renders[fig.id] = (render, fig)
     matches: list[references.Match] = []
     problems: list[str] = []
-    views: dict[str, str] = {}
+    views: dict[str, replication.ChangeView] = {}
+    shown: dict[str, str] = {}
     if run.reference is not None:
-        pictures, problems = references.load_references(run.reference)
-        matches = references.match(pictures, regenerated)
+        refs, problems = references.load_references(run.reference)
+        matches = references.match(refs, regenerated)
         matched = references.matched_regenerated(matches)
         figures = [replace(f, reference=matched.get(f.id)) for f in figures]
-        if out_dir is not None:
-            views = _change_views(matches, pictures, regenerated, out_dir)
+        views = _change_views(matches, refs, renders, pictures)
+        shown = _thumbnails(refs, pictures)
+    shown.update(_rendered(renders, pictures))
     freetype = next((r.freetype for r in runs if r.freetype), None)
     return replication.Replication(
         deposit=name, sha256=_sha256(path), version=__version__, survey=found,
         causes=environment.causes(runs, found), runs=runs, matches=tuple(matches),
         references_asked=run.reference is not None, reference_problems=tuple(problems), regenerated=tuple(figures),
-        change_views=views, findings=checked.result.findings, environment=environment_fingerprint(freetype))
+        change_views=views, findings=checked.result.findings, environment=environment_fingerprint(freetype),
+        pictures=shown)
 
 
-def _change_views(matches: Sequence[references.Match], pictures: Sequence[references.Picture],
-                  regenerated: Sequence[references.Picture], out_dir: Path) -> dict[str, str]:
-    by_label = {p.label: p for p in (*pictures, *regenerated)}
-    views: dict[str, str] = {}
+def _safe(label: str) -> str:
+    return "".join(c if c.isalnum() or c in "._-" else "_" for c in label)
+
+
+def _change_views(matches: Sequence[references.Match], refs: Sequence[references.Picture],
+                  renders: Mapping[str, tuple[Path, FigureModel]], folder: Path) -> dict[str, replication.ChangeView]:
+    """The change view of every reference that differs from its closest regenerated figure (the product's one
+    change view: :func:`figproof.deposit.references.change_view`)."""
+    from PIL import Image
+
+    from figproof.report.change_view import ChangeViewError
+
+    by_label = {p.label: p for p in refs}
+    views: dict[str, replication.ChangeView] = {}
     for m in matches:
-        if m.verdict != "differs" or m.regenerated is None:
+        if m.verdict != "differs" or m.regenerated is None or m.regenerated not in renders:
             continue
-        file = f"changes/{m.reference.replace('/', '__')}.png"
-        references.change_view(by_label[m.reference], by_label[m.regenerated], out_dir / file)
-        views[m.reference] = file
+        render, figure = renders[m.regenerated]
+        stem = _safe(m.reference)
+        try:
+            with Image.open(render) as page:
+                page.load()
+                ref = by_label[m.reference]
+                placed, change = references.change_view(ref, page, folder / f"{stem}-changes.png", figure)
+                references.change_view(ref, page, folder / f"{stem}-view.png", figure, caption=False)  # the page
+        except (ChangeViewError, OSError, ValueError):
+            continue  # the verdict still stands; an unreadable render gets no picture
+        placed.save(folder / f"{stem}-submitted.png", format="PNG")
+        views[m.reference] = replication.ChangeView(image=f"{stem}-changes.png", view=f"{stem}-view.png",
+                                                    submitted=f"{stem}-submitted.png",
+                                                    regenerated=f"figure-{_safe(m.regenerated)}.png",
+                                                    caption=change.caption())
     return views
+
+
+def _thumbnails(refs: Sequence[references.Picture], folder: Path) -> dict[str, str]:
+    """Each reference as submitted (trimmed), as a PNG a browser shows whatever its format (TIFF, PDF)."""
+    folder.mkdir(parents=True, exist_ok=True)
+    out: dict[str, str] = {}
+    for p in refs:
+        name = f"reference-{_safe(p.label)}.png"
+        img = p.shown.convert("RGB")
+        img.thumbnail((900, 900))
+        img.save(folder / name, format="PNG", compress_level=1)
+        out[p.label] = name
+    return out
+
+
+def _rendered(renders: Mapping[str, tuple[Path, FigureModel]], folder: Path) -> dict[str, str]:
+    folder.mkdir(parents=True, exist_ok=True)
+    out: dict[str, str] = {}
+    for fig_id, (render, _) in sorted(renders.items()):
+        name = f"figure-{_safe(fig_id)}.png"
+        shutil.copyfile(render, folder / name)
+        out[fig_id] = name
+    return out
+
+
+def _publish(rep: replication.Replication, pictures: Path, out: Outputs) -> None:
+    """Copy the change views beside the markdown and JSON, and write the HTML page with its images."""
+    if out.changes is not None:
+        for cv in rep.change_views.values():
+            out.changes.mkdir(parents=True, exist_ok=True)
+            shutil.copyfile(pictures / cv.image, out.changes / cv.image)
+    if out.html is not None:
+        from figproof.deposit import page
+
+        img = out.html.parent / page.IMAGES
+        img.mkdir(parents=True, exist_ok=True)  # files are overwritten by name; nothing else is touched
+        captioned = {cv.image for cv in rep.change_views.values()}  # the page writes its own captions
+        for file in sorted(pictures.iterdir()) if pictures.is_dir() else ():
+            if file.name not in captioned:
+                shutil.copyfile(file, img / file.name)
+        write_text(out.html, page.render(rep))
 
 
 def run(request: DepositRun, progress: Progress | None = None) -> int:
@@ -187,9 +267,11 @@ def usage_problem(request: DepositRun) -> str | None:
 def _single(path: Path, request: DepositRun, progress: Progress | None) -> int:
     if not path.exists():
         raise DepositError(f"{path}: no such file or folder")
-    markdown, js = request.reports.markdown, request.reports.json
-    out_dir = markdown.parent if markdown is not None else (js.parent if js is not None else None)
-    rep = replicate(path, request, out_dir, progress)
+    markdown, js, html = request.reports.markdown, request.reports.json, request.reports.html
+    beside = markdown.parent if markdown is not None else (js.parent if js is not None else None)
+    out = Outputs(changes=beside / replication.CHANGES if beside is not None else None,
+                  html=html / "index.html" if html is not None else None)
+    rep = replicate(path, request, out, progress)
     text = replication.render_markdown(rep)
     if markdown is not None:
         write_text(markdown, text)
@@ -211,7 +293,8 @@ def _batch(paths: Sequence[Path], request: DepositRun, report_dir: Path, progres
         try:
             if not path.exists():
                 raise DepositError(f"{path}: no such file or folder")
-            rep = replicate(path, request, report_dir / folder, progress)
+            rep = replicate(path, request, Outputs(changes=report_dir / folder / replication.CHANGES,
+                                                   html=report_dir / folder / REPLICATION_HTML), progress)
         except DepositError as exc:
             _say(request, f"figproof: {exc}")
             entries.append(replication.IndexEntry(deposit=name, problem=str(exc)))
@@ -219,12 +302,15 @@ def _batch(paths: Sequence[Path], request: DepositRun, report_dir: Path, progres
         write_text(report_dir / folder / "replication.md", replication.render_markdown(rep))
         write_text(report_dir / folder / "replication.json", replication.render_json(rep))
         entries.append(replication.IndexEntry(deposit=name, folder=folder, headline=replication.headline(rep),
-                                              reproduced=rep.reproduced))
+                                              reproduced=rep.reproduced, html=f"{folder}/{REPLICATION_HTML}"))
         _say(request, f"figproof: {name}: {'reproduced' if rep.reproduced else 'NOT reproduced'}: "
                       f"{replication.headline(rep)}")
     index = replication.render_index(entries)
     write_text(report_dir / "index.md", index)
     write_text(report_dir / "index.json", replication.index_json(entries))
+    from figproof.deposit import page
+
+    write_text(report_dir / "index.html", page.render_index(entries))
     if not request.quiet:
         print(index)
     if any(e.problem is not None for e in entries):
@@ -240,4 +326,4 @@ def _unique(name: str, used: set[str]) -> str:
     return folder
 
 
-__all__ = ["DepositRun", "replicate", "run", "usage_problem", "wanted"]
+__all__ = ["DepositRun", "Outputs", "replicate", "run", "usage_problem", "wanted"]

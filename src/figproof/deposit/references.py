@@ -29,10 +29,15 @@ import itertools
 from collections.abc import Iterable, Iterator, Sequence
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Literal
+from typing import TYPE_CHECKING, Literal
 
 import numpy as np
-from PIL import Image, ImageDraw, ImageOps, UnidentifiedImageError
+from PIL import Image, ImageOps, UnidentifiedImageError
+
+from figproof.model.records import FigureModel
+
+if TYPE_CHECKING:
+    from figproof.report.change_view import Change
 
 REFERENCE_SUFFIXES = (".png", ".tif", ".tiff", ".jpg", ".jpeg", ".pdf", ".gif", ".webp", ".bmp")
 SIDE = 128  # both images are scaled to SIDE × SIDE grey pixels before they are compared
@@ -196,18 +201,29 @@ def over_white(img: Image.Image) -> Image.Image:
     return img.convert("RGB")
 
 
-def trim(img: Image.Image, tolerance: int = MARGIN_TOLERANCE) -> tuple[Image.Image, tuple[bool, bool, bool, bool]]:
-    """The image without uniform margins (rows and columns within ``tolerance`` of the corner colour), and
-    whether ink reaches each edge of the image (left, top, right, bottom; within 2 pixels)."""
+def ink_box(img: Image.Image, tolerance: int = MARGIN_TOLERANCE) -> tuple[int, int, int, int] | None:
+    """(left, top, right, bottom; end exclusive) of what is not uniform margin, or None for a blank image.
+
+    A row or column is margin when every pixel of it is within ``tolerance`` grey levels of the corner colour.
+    """
     grey = np.asarray(img.convert("L"), dtype=np.int16)
     corner = int(np.median([grey[0, 0], grey[0, -1], grey[-1, 0], grey[-1, -1]]))
     ink = np.abs(grey - corner) > tolerance
     rows, cols = np.flatnonzero(ink.any(axis=1)), np.flatnonzero(ink.any(axis=0))
     if rows.size == 0 or cols.size == 0:
+        return None
+    return int(cols[0]), int(rows[0]), int(cols[-1]) + 1, int(rows[-1]) + 1
+
+
+def trim(img: Image.Image, tolerance: int = MARGIN_TOLERANCE) -> tuple[Image.Image, tuple[bool, bool, bool, bool]]:
+    """The image without uniform margins (rows and columns within ``tolerance`` of the corner colour), and
+    whether ink reaches each edge of the image (left, top, right, bottom; within 2 pixels)."""
+    box = ink_box(img, tolerance)
+    if box is None:
         return img, (False, False, False, False)
-    h, w = grey.shape
-    edges = (bool(cols[0] <= 2), bool(rows[0] <= 2), bool(cols[-1] >= w - 3), bool(rows[-1] >= h - 3))
-    return img.crop((int(cols[0]), int(rows[0]), int(cols[-1]) + 1, int(rows[-1]) + 1)), edges
+    w, h = img.size
+    edges = (box[0] <= 2, box[1] <= 2, box[2] >= w - 2, box[3] >= h - 2)
+    return img.crop(box), edges
 
 
 def normalise(img: Image.Image) -> tuple[np.ndarray, Image.Image, tuple[bool, bool, bool, bool]]:
@@ -364,26 +380,41 @@ def matched_regenerated(matches: Iterable[Match]) -> dict[str, str]:
 
 # --------------------------------------------------------------------------- the change view
 
+#: A figure as a journal returns it differs from the regenerated one by resampling and compression in every
+#: edge; blurring both (σ = 2 px) and counting only differences above 64 grey levels leaves what really moved.
+#: Common practice, set on a plot resized, cropped by 3 px and JPEG-compressed at quality 40 (no pixel counted)
+#: against the same plot with one point moved (the point and its two line segments counted).
+VIEW_BLUR, VIEW_TOLERANCE = 2.0, 64
 
-def change_view(reference: Picture, regenerated: Picture, out: Path, side: int = 360) -> Path:
-    """Write reference | regenerated | difference, each trimmed and scaled to ``side`` px, as one PNG."""
-    a = reference.shown.convert("L").resize((side, side), Image.Resampling.LANCZOS)
-    b = regenerated.shown.convert("L").resize((side, side), Image.Resampling.LANCZOS)
-    diff = np.abs(np.asarray(a, dtype=np.int16) - np.asarray(b, dtype=np.int16))
-    # differences dark on white, amplified ×4 so a thin changed line shows
-    diff_img = Image.fromarray(np.uint8(255 - np.clip(diff * 4, 0, 255)))
-    gap, header = 8, 16
-    sheet = Image.new("RGB", (3 * side + 4 * gap, side + header + 2 * gap), (255, 255, 255))
-    draw = ImageDraw.Draw(sheet)
-    for i, (panel, title) in enumerate(((a, "as submitted"), (b, "regenerated"), (diff_img, "difference x4"))):
-        x = gap + i * (side + gap)
-        sheet.paste(panel.convert("RGB"), (x, header + gap))
-        draw.text((x, 2), title, fill=(0, 0, 0))
-    out.parent.mkdir(parents=True, exist_ok=True)
-    sheet.save(out, format="PNG")
+
+def placed(reference: Picture, page: Image.Image) -> Image.Image:
+    """The reference as submitted, set on the regenerated figure's page: its trimmed figure scaled into the box
+    the regenerated figure's ink fills, on white, so that the two can be laid over each other pixel for pixel."""
+    page = over_white(page)
+    box = ink_box(page) or (0, 0, page.width, page.height)
+    out = Image.new("RGB", page.size, (255, 255, 255))
+    size = (max(1, box[2] - box[0]), max(1, box[3] - box[1]))
+    out.paste(reference.shown.convert("RGB").resize(size, Image.Resampling.LANCZOS), box[:2])
     return out
 
 
+def change_view(reference: Picture, page: Image.Image, out: Path, figure: FigureModel | None = None,
+                *, caption: bool = True) -> tuple[Image.Image, Change]:
+    """Write the change view of a reference that differs from its regenerated figure (``page``, as rendered).
+
+    It is the change view of :mod:`figproof.report.change_view` (the regenerated figure faded, what differs
+    from the figure as submitted tinted and outlined, the parts named from ``figure``'s model), with the
+    tolerance of :data:`VIEW_TOLERANCE` after a blur of :data:`VIEW_BLUR`.  Returns the reference as placed
+    on the page (what the view compares with) and what changed.
+    """
+    from figproof.report.change_view import write_view
+
+    before = placed(reference, page)
+    change = write_view(np.asarray(before), np.asarray(over_white(page)), out, figure, caption=caption,
+                        tolerance=VIEW_TOLERANCE, blur=VIEW_BLUR, since="the figure as submitted")
+    return before, change
+
+
 __all__ = ["REFERENCE_SUFFIXES", "REPRODUCED", "RESEMBLES", "Match", "Picture", "ReferenceError", "change_view",
-           "load_references", "match", "matched_regenerated", "normalise", "pdf_pages", "picture",
+           "ink_box", "load_references", "match", "matched_regenerated", "normalise", "pdf_pages", "picture", "placed",
            "reference_files", "regenerated_picture", "similarity", "ssim", "ssim_map", "trim", "verdict_for"]

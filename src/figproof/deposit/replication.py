@@ -32,6 +32,21 @@ class Regenerated:
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
+class ChangeView:
+    """A reference that differs: the change view's files (names within the report's image folder) and caption."""
+
+    image: str  # the change view: the regenerated figure faded, what differs from the reference tinted
+    view: str  # the same without its caption band (the HTML page writes the caption)
+    submitted: str  # the reference as placed on the regenerated figure's page
+    regenerated: str  # the regenerated figure as rendered
+    caption: str  # what changed, in plain words ("the lines changed; 2 % of pixels")
+
+
+#: The folder beside the markdown and JSON reports that holds the change views.
+CHANGES = "changes"
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
 class Replication:
     """Everything one deposit's replication report says."""
 
@@ -45,9 +60,10 @@ class Replication:
     references_asked: bool = False  # --reference was given
     reference_problems: tuple[str, ...] = ()
     regenerated: tuple[Regenerated, ...] = ()
-    change_views: Mapping[str, str] = field(default_factory=dict)  # reference → link to its change view
+    change_views: Mapping[str, ChangeView] = field(default_factory=dict)  # reference → its change view
     findings: tuple[Finding, ...] = ()  # figproof's other findings
     environment: Mapping[str, Any] = field(default_factory=dict)  # versions (report.provenance fingerprint)
+    pictures: Mapping[str, str] = field(default_factory=dict)  # reference or figure id → its image (HTML report)
 
     @property
     def failed(self) -> tuple[ScriptRun, ...]:
@@ -96,6 +112,17 @@ def _cause_of(rep: Replication) -> dict[str, Cause]:
     return {s: c for c in rep.causes for s in c.scripts}
 
 
+def unexplained(rep: Replication) -> list[str]:
+    """Scripts that failed for no environmental cause (a bug, missing data)."""
+    causes = _cause_of(rep)
+    return [r.path for r in rep.failed if r.path not in causes]
+
+
+def other_findings(rep: Replication) -> list[Finding]:
+    """figproof's open findings besides the failures the environment section explains."""
+    return [f for f in rep.findings if f.accepted is None and f.rule != "script-fails"]
+
+
 def _environment(rep: Replication) -> list[str]:
     s = rep.survey
     lines = ["## Environment", ""]
@@ -103,10 +130,10 @@ def _environment(rep: Replication) -> list[str]:
         lines += ["What stopped scripts here, one line per cause:", ""]
         lines += [f"- **{_cell(c.verdict)}**: {_list(c.scripts)}" for c in rep.causes]
         lines.append("")
-    unexplained = [r.path for r in rep.failed if r.path not in _cause_of(rep)]
-    if unexplained:
-        lines += [f"{_n(len(unexplained), 'script')} failed for a reason that is not the environment (see the run "
-                  f"log): {_list(unexplained)}.", ""]
+    other = unexplained(rep)
+    if other:
+        lines += [f"{_n(len(other), 'script')} failed for a reason that is not the environment (see the run "
+                  f"log): {_list(other)}.", ""]
     missing = [i for i in s.missing if not any(c.kind == "package-missing" and c.key == i.distribution
                                                for c in rep.causes)]
     if missing:
@@ -146,8 +173,8 @@ def _references(rep: Replication) -> list[str]:
         lines += ["| figure as submitted | verdict | closest regenerated figure | similarity | change view |",
                   "|---|---|---|---|---|"]
         for m in rep.matches:
-            view = f"[as submitted, regenerated, difference]({rep.change_views[m.reference]})" \
-                if m.reference in rep.change_views else "—"
+            cv = rep.change_views.get(m.reference)
+            view = f"[what changed]({CHANGES}/{cv.image}): {_cell(cv.caption)}" if cv is not None else "—"
             closest = f"`{_cell(m.regenerated)}`" if m.regenerated else "—"
             lines.append(f"| `{_cell(m.reference)}` | {_VERDICT_WORDS[m.verdict]} | {closest} | "
                          f"{m.similarity:.2f} | {view} |")
@@ -216,7 +243,7 @@ def _provenance(rep: Replication) -> list[str]:
 
 
 def _findings(rep: Replication) -> list[str]:
-    shown = [f for f in rep.findings if f.accepted is None and f.rule != "script-fails"]
+    shown = other_findings(rep)
     if not shown:
         return []
     lines = ["## Other findings", "", f"figproof's figure checks found {_n(len(shown), 'problem')} in the figures "
@@ -245,7 +272,7 @@ def letter(rep: Replication) -> str:
         out.append("Scripts failed for these reasons: " + "; ".join(
             f"{c.verdict} ({', '.join(c.scripts[:6])}{' ...' if len(c.scripts) > 6 else ''})" for c in rep.causes)
             + ".")
-    other = [r.path for r in rep.failed if r.path not in _cause_of(rep)]
+    other = unexplained(rep)
     if other:
         out.append(f"{', '.join(other)} failed with an error in the code itself (the run log gives it).")
     if rep.reproduced:
@@ -295,7 +322,7 @@ def report_dict(rep: Replication) -> dict[str, Any]:
             "versions": dict(rep.environment),
         },
         "references": [{"reference": m.reference, "verdict": m.verdict, "regenerated": m.regenerated,
-                        "similarity": m.similarity, "change_view": rep.change_views.get(m.reference)}
+                        "similarity": m.similarity, **_view_json(rep.change_views.get(m.reference))}
                        for m in rep.matches] if rep.references_asked else None,
         "reference_problems": list(rep.reference_problems),
         "regenerated": [{"id": g.id, "script": g.script, "outputs": list(g.outputs), "reference": g.reference}
@@ -305,10 +332,16 @@ def report_dict(rep: Replication) -> dict[str, Any]:
                      "error": ({"type": r.error.type, "message": r.error.message, "kind": r.error.kind}
                                if r.error else None)} for r in rep.runs],
         "inputs": [{"path": p, "sha256": h} for p, h in inputs(rep.runs)],
-        "findings": [{"rule": f.rule, "path": f.path, "line": f.line, "message": f.message} for f in rep.findings
-                     if f.accepted is None and f.rule != "script-fails"],
+        "findings": [{"rule": f.rule, "path": f.path, "line": f.line, "message": f.message}
+                     for f in other_findings(rep)],
         "letter": letter(rep),
     }
+
+
+def _view_json(cv: ChangeView | None) -> dict[str, str | None]:
+    if cv is None:
+        return {"change_view": None, "change_caption": None}
+    return {"change_view": f"{CHANGES}/{cv.image}", "change_caption": cv.caption}
 
 
 def render_json(rep: Replication) -> str:
@@ -324,6 +357,7 @@ class IndexEntry:
     headline: str = ""
     reproduced: bool = False
     problem: str | None = None  # a deposit that could not be unpacked or checked
+    html: str | None = None  # the deposit's HTML report, relative to the index
 
 
 def render_index(entries: Sequence[IndexEntry]) -> str:
@@ -339,16 +373,18 @@ def render_index(entries: Sequence[IndexEntry]) -> str:
         else:
             verdict = ("reproduced" if e.reproduced else "**not reproduced**") + f": {_cell(e.headline)}"
             link = f"{e.folder}/replication.md"
-            lines.append(f"| `{_cell(e.deposit)}` | {verdict} | [{link}]({link}) |")
+            page = f", [the visual report]({e.html})" if e.html else ""
+            lines.append(f"| `{_cell(e.deposit)}` | {verdict} | [{link}]({link}){page} |")
     lines.append("")
     return "\n".join(lines)
 
 
 def index_json(entries: Sequence[IndexEntry]) -> str:
     data = {"schema": SCHEMA, "deposits": [{"deposit": e.deposit, "folder": e.folder, "headline": e.headline,
-                                            "reproduced": e.reproduced, "problem": e.problem} for e in entries]}
+                                            "reproduced": e.reproduced, "problem": e.problem, "html": e.html}
+                                           for e in entries]}
     return json.dumps(data, sort_keys=True, allow_nan=False, indent=2) + "\n"
 
 
-__all__ = ["IndexEntry", "Regenerated", "Replication", "headline", "index_json", "inputs", "letter",
-           "render_index", "render_json", "render_markdown", "report_dict"]
+__all__ = ["CHANGES", "ChangeView", "IndexEntry", "Regenerated", "Replication", "headline", "index_json", "inputs",
+           "letter", "other_findings", "render_index", "render_json", "render_markdown", "report_dict", "unexplained"]

@@ -9,6 +9,10 @@ words which parts of the figure changed ("the title and the bars changed;
 bars, points, lines in display coordinates) when the saved file has the
 figure's own geometry, and by position otherwise.
 
+It is also the change view of a deposit's figure that differs from the one
+submitted (:mod:`figproof.deposit.references`), compared with a blur and a
+tolerance so that resampling and JPEG compression do not count as change.
+
 Pure rendering with Pillow, numpy and scipy; deterministic (the same pair of
 files gives the same bytes).  The HTML report shows the same picture and
 switches in place between it and the two files.
@@ -126,15 +130,30 @@ def _canvas(x: np.ndarray, height: int, width: int) -> np.ndarray:
     return out
 
 
-def changed_mask(committed: np.ndarray, regenerated: np.ndarray) -> np.ndarray:
-    """H×W bool: pixels that differ in any channel; where only one image reaches, every pixel counts."""
+def changed_mask(committed: np.ndarray, regenerated: np.ndarray, tolerance: int = 0,
+                 blur: float = 0.0) -> np.ndarray:
+    """H×W bool: pixels that differ in any channel; where only one image reaches, every pixel counts.
+
+    ``tolerance`` (grey levels, 0 to 254): a pixel changed only when a channel differs by more than this.
+    ``blur`` (pixels): both images are first blurred with a Gaussian of this σ, so that what resampling
+    and compression move by a pixel or two (a figure as a journal returns it) does not count as changed.
+    """
     height, width = max(committed.shape[0], regenerated.shape[0]), max(committed.shape[1], regenerated.shape[1])
     mask = np.ones((height, width), bool)
     h, w = min(committed.shape[0], regenerated.shape[0]), min(committed.shape[1], regenerated.shape[1])
+    if blur > 0:
+        from scipy.ndimage import gaussian_filter
+
+        sigma = (blur, blur, 0.0)
+        committed = np.asarray(gaussian_filter(committed[:h, :w].astype(np.float32), sigma=sigma))
+        regenerated = np.asarray(gaussian_filter(regenerated[:h, :w].astype(np.float32), sigma=sigma))
     for top in range(0, h, _ROWS):
         bottom = min(top + _ROWS, h)
         a, b = committed[top:bottom, :w], regenerated[top:bottom, :w]
-        mask[top:bottom, :w] = np.any(a != b, axis=-1)
+        if tolerance:
+            mask[top:bottom, :w] = np.any(np.abs(a.astype(np.int16) - b.astype(np.int16)) > tolerance, axis=-1)
+        else:
+            mask[top:bottom, :w] = np.any(a != b, axis=-1)
     return mask
 
 
@@ -326,10 +345,13 @@ def _shrink(x: np.ndarray, factor: int) -> np.ndarray:
     return np.asarray(img.reduce(factor))
 
 
-def analyse(committed: np.ndarray, regenerated: np.ndarray, figure: FigureModel | None = None) -> tuple[
-        Change, np.ndarray, np.ndarray]:
-    """Compare two opaque RGB images; return the change, the view's base image and its mask (both shrunk)."""
-    mask = changed_mask(committed, regenerated)
+def analyse(committed: np.ndarray, regenerated: np.ndarray, figure: FigureModel | None = None, *,
+            tolerance: int = 0, blur: float = 0.0) -> tuple[Change, np.ndarray, np.ndarray]:
+    """Compare two opaque RGB images; return the change, the view's base image and its mask (both shrunk).
+
+    ``tolerance`` and ``blur`` are :func:`changed_mask`'s (0: every differing pixel counts).
+    """
+    mask = changed_mask(committed, regenerated, tolerance, blur)
     height, width = mask.shape
     factor = max(1, -(-max(height, width) // MAX_SIDE))
     small_mask = _shrink_mask(mask, factor)
@@ -349,7 +371,8 @@ def analyse(committed: np.ndarray, regenerated: np.ndarray, figure: FigureModel 
     return change, base, small_mask
 
 
-def render(change: Change, base: np.ndarray, mask: np.ndarray, *, caption: bool = True) -> Image.Image:
+def render(change: Change, base: np.ndarray, mask: np.ndarray, *, caption: bool = True,
+           since: str = "the committed file") -> Image.Image:
     """The change view: faded regenerated figure, changed pixels tinted, regions outlined, caption below."""
     ink = 255.0 - base.astype(np.float32)
     faded = 255.0 - ink * FADE
@@ -367,7 +390,7 @@ def render(change: Change, base: np.ndarray, mask: np.ndarray, *, caption: bool 
         return view
     size = max(12, min(20, view.width // 40))
     font, small = _font(size), _font(max(11, size - 3))
-    lines = [(t, font, (20, 20, 20)) for t in _wrap(f"Since the committed file: {change.caption()}.", font,
+    lines = [(t, font, (20, 20, 20)) for t in _wrap(f"Since {since}: {change.caption()}.", font,
                                                    view.width - 16)]
     lines += [(t, small, (90, 90, 90)) for t in _wrap("Regenerated figure, faded; changed pixels in orange, each "
                                                      "changed region outlined.", small, view.width - 16)]
@@ -401,12 +424,22 @@ def write_change_view(committed: Path | bytes, regenerated: Path | bytes, out_pn
     ChangeViewError
         When either image cannot be read or is too large.
     """
-    change, base, mask = analyse(read_on_white(committed), read_on_white(regenerated), figure)
+    return write_view(read_on_white(committed), read_on_white(regenerated), out_png, figure, caption=caption)
+
+
+def write_view(before: np.ndarray, after: np.ndarray, out_png: Path, figure: FigureModel | None = None, *,
+               caption: bool = True, tolerance: int = 0, blur: float = 0.0,
+               since: str = "the committed file") -> Change:
+    """Write the change view of two opaque RGB images (``after`` is the regenerated figure) as one PNG.
+
+    ``tolerance`` and ``blur`` are :func:`changed_mask`'s; ``since`` names ``before`` in the caption band.
+    """
+    change, base, mask = analyse(before, after, figure, tolerance=tolerance, blur=blur)
     out = Path(out_png)
     out.parent.mkdir(parents=True, exist_ok=True)
-    render(change, base, mask, caption=caption).save(out, format="PNG")
+    render(change, base, mask, caption=caption, since=since).save(out, format="PNG")
     return change
 
 
 __all__ = ["Change", "ChangeViewError", "analyse", "changed_mask", "changed_parts", "read_on_white", "regions_of",
-           "render", "write_change_view"]
+           "render", "write_change_view", "write_view"]

@@ -89,6 +89,9 @@ def _e(text: object) -> str:
     return html.escape(str(text), quote=True)
 
 
+escape = _e  # text made safe for HTML, quotes included
+
+
 def where(f: Finding) -> str:
     cell = f" cell {f.cell}" if f.cell is not None else ""
     line = f":{f.line}" if f.line else ""
@@ -124,7 +127,7 @@ def _header(result: CheckResult, provenance: Mapping[str, Any]) -> str:
     verdict = "passed" if s.passed else "failed"
     chips = [("error", s.errors, "errors"), ("warning", s.warnings, "warnings"), ("note", s.notes, "notes"),
              ("accepted", s.accepted, "accepted")]
-    chip_html = "".join(f'<span class="chip {k}"><b>{n}</b> {label}</span>' for k, n, label in chips)
+    chip_html = "".join(chip(k, n, label) for k, n, label in chips)
     commit = provenance.get("git_commit")
     facts = [f"{s.figures} figure{'s' * (s.figures != 1)} from {s.scripts} script{'s' * (s.scripts != 1)}",
              f"figproof {_e(result.version)}"]
@@ -132,9 +135,20 @@ def _header(result: CheckResult, provenance: Mapping[str, Any]) -> str:
         facts.append(f"commit <code>{_e(str(commit)[:12])}</code>")
     if provenance.get("date"):
         facts.append(_e(provenance["date"]))
-    return (f'<header class="verdict {verdict}"><div class="word">{verdict.upper()}</div>'
-            f'<div class="what"><h1>figproof report for <code>{_e(result.root)}</code></h1>'
-            f'<p class="chips">{chip_html}</p><p class="facts">{" · ".join(facts)}</p></div></header>')
+    return banner(verdict.upper(), s.passed, f"figproof report for <code>{_e(result.root)}</code>", chip_html,
+                  facts)
+
+
+def banner(word: str, good: bool, title: str, chips: str, facts: Sequence[str]) -> str:
+    """The page's verdict header: the word in large letters, a title (HTML), chips (HTML) and facts (HTML)."""
+    kind = "passed" if good else "failed"
+    return (f'<header class="verdict {kind}"><div class="word">{_e(word)}</div>'
+            f'<div class="what"><h1>{title}</h1>'
+            f'<p class="chips">{chips}</p><p class="facts">{" · ".join(facts)}</p></div></header>')
+
+
+def chip(kind: str, count: int, label: str) -> str:
+    return f'<span class="chip {_e(kind)}"><b>{count}</b> {_e(label)}</span>'
 
 
 def _filters(result: CheckResult) -> str:
@@ -225,18 +239,24 @@ def _accepted_list(findings: Sequence[Finding]) -> str:
 
 
 def _drift(d: Drift, n: int) -> str:
-    name = f"drift-{n}"
     views = (("changes", "what changed", d.changes), ("committed", "committed file", d.committed),
              ("regenerated", "regenerated now", d.regenerated))
-    radios = "".join(f'<label><input type="radio" name="{name}" value="{key}"{" checked" * (key == "changes")}> '
-                     f'{label}</label>' for key, label, _ in views)
-    imgs = "".join(f'<img data-view="{key}" src="{_e(src)}" alt="{_e(d.path)}: {label}"'
-                   f'{" hidden" * (key != "changes")}>' for key, label, src in views)
-    return (f'<div class="drift" data-switch><h3>Drift of <code>{_e(d.path)}</code></h3>'
-            f'<p class="caption">{_e(d.caption)}.</p><div class="switch" role="radiogroup">{radios}</div>'
-            f'<div class="views">{imgs}</div>'
-            '<p class="legend">What changed: the regenerated figure faded, changed pixels in orange, each changed '
-            'region outlined.</p></div>')
+    return switch(f"drift-{n}", f"Drift of <code>{_e(d.path)}</code>", d.caption, views, d.path,
+                  "What changed: the regenerated figure faded, changed pixels in orange, each changed region "
+                  "outlined.")
+
+
+def switch(name: str, title: str, caption: str, views: Sequence[tuple[str, str, str]], alt: str,
+           legend: str) -> str:
+    """Pictures of one figure with a switch between them in place: ``views`` are (key, label, src), the first
+    shown; ``title`` is HTML, ``caption``, ``alt`` and ``legend`` are text."""
+    radios = "".join(f'<label><input type="radio" name="{_e(name)}" value="{_e(key)}"{" checked" * (i == 0)}> '
+                     f'{_e(label)}</label>' for i, (key, label, _) in enumerate(views))
+    imgs = "".join(f'<img data-view="{_e(key)}" src="{_e(src)}" alt="{_e(alt)}: {_e(label)}"'
+                   f'{" hidden" * (i != 0)}>' for i, (key, label, src) in enumerate(views))
+    return (f'<div class="drift" data-switch><h3>{title}</h3>'
+            f'<p class="caption">{_e(caption)}.</p><div class="switch" role="radiogroup">{radios}</div>'
+            f'<div class="views">{imgs}</div><p class="legend">{_e(legend)}</p></div>')
 
 
 def _vision(views: Sequence[View]) -> str:
@@ -306,19 +326,24 @@ def render(page: Page) -> str:
         drift_n += len(fig.drifts)
     total = sum(1 for f in result.findings if f.accepted is None)
     meta = json.dumps({"open": total}, sort_keys=True)
+    body = (f"{_header(result, page.provenance)}<main>{_filters(result)}"
+            f'<section id="overview"><h2>Figures</h2><div class="grid">{grid or "<p>No figures were drawn.</p>"}'
+            f"</div></section>{''.join(sections)}{_loose(loose)}</main>"
+            f'<footer>Marks are placed from the figure model figproof recorded while the script drew; '
+            f'numbers match the list beside each figure. <script type="application/json" id="counts">{meta}</script>'
+            f"</footer>")
+    return document(f"figproof: {'passed' if result.summary.passed else 'failed'} · {result.root}", body)
+
+
+def document(title: str, body: str) -> str:
+    """A whole HTML5 page around ``body`` (HTML): figproof's style and script inline, no external file but the
+    images it links, a content security policy that allows nothing else."""
     return (
         "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
         "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">"
         "<meta http-equiv=\"Content-Security-Policy\" content=\"default-src 'none'; img-src 'self' data:; "
         "style-src 'unsafe-inline'; script-src 'unsafe-inline'\">"
-        f"<title>figproof: {'passed' if result.summary.passed else 'failed'} · {_e(result.root)}</title>"
-        f"<style>{_CSS}</style></head><body>"
-        f"{_header(result, page.provenance)}<main>{_filters(result)}"
-        f'<section id="overview"><h2>Figures</h2><div class="grid">{grid or "<p>No figures were drawn.</p>"}'
-        f"</div></section>{''.join(sections)}{_loose(loose)}</main>"
-        f'<footer>Marks are placed from the figure model figproof recorded while the script drew; '
-        f'numbers match the list beside each figure. <script type="application/json" id="counts">{meta}</script>'
-        f"</footer><script>{_JS}</script></body></html>\n"
+        f"<title>{_e(title)}</title><style>{_CSS}</style></head><body>{body}<script>{_JS}</script></body></html>\n"
     )
 
 
@@ -370,6 +395,9 @@ details{margin-top:12px}summary{cursor:pointer;font-weight:600}
 .views img{max-width:100%;border:1px solid var(--line);margin-top:6px}.legend{font-size:.82rem;color:#555}
 .prov table{border-collapse:collapse;font-size:.85rem}.prov td,.prov th{border:1px solid var(--line);
 padding:3px 8px;text-align:left}.sha{font-size:.78rem}
+table.plain{border-collapse:collapse;font-size:.85rem;margin:8px 0}table.plain td,table.plain th{
+border:1px solid var(--line);padding:3px 8px;text-align:left;vertical-align:top}table.plain th{background:#efece4}
+blockquote.letter{margin:8px 0;padding:12px 16px;background:#fff;border-left:5px solid var(--note)}
 footer{max-width:1180px;margin:30px auto;padding:0 20px;color:#666;font-size:.85rem}
 [hidden]{display:none!important}
 """
@@ -379,6 +407,7 @@ _JS = """
 (function(){
   var form=document.getElementById('filters');
   function apply(){
+    if(!form){return;}
     var rule=form.rule.value, sev=form.severity.value, script=form.script.value, acc=form.accepted.checked;
     var shown=0, all=0;
     document.querySelectorAll('[data-finding]').forEach(function(el){
@@ -404,7 +433,7 @@ _JS = """
     });
     document.getElementById('shown').textContent='showing '+shown+' of '+all+' open findings';
   }
-  form.addEventListener('change',apply); apply();
+  if(form){form.addEventListener('change',apply); apply();}
   document.querySelectorAll('[data-switch]').forEach(function(box){
     box.addEventListener('change',function(ev){
       box.querySelectorAll('img[data-view]').forEach(function(img){img.hidden=img.dataset.view!==ev.target.value;});
@@ -413,4 +442,5 @@ _JS = """
 })();
 """
 
-__all__ = ["Drift", "FigureEntry", "Page", "Redraw", "View", "allow_comment", "render", "worst"]
+__all__ = ["Drift", "FigureEntry", "Page", "Redraw", "View", "allow_comment", "banner", "chip", "document", "escape",
+           "render", "switch", "worst"]
