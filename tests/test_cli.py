@@ -31,7 +31,10 @@ def test_public_surface() -> None:
 def test_rules_lists_every_rule(capsys) -> None:
     assert main(["rules"]) == ExitCode.PASSED
     out = capsys.readouterr().out
-    assert [line.split()[0] for line in out.splitlines()] == [r.id for r in RULES]
+    listed = [line.split()[0] for line in out.splitlines()[: len(RULES)]]
+    assert listed == [r.id for r in RULES]
+    # the opt-in rule is marked as such, and the footer says how to turn it on
+    assert "colours-confusable-gray  opt-in" in out and 'severity = "note"' in out.splitlines()[-1]
 
 
 def test_explain_known_and_unknown(capsys) -> None:

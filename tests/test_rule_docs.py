@@ -16,15 +16,18 @@ import pytest
 from figproof.docgen import pages
 from figproof.pipeline import CheckOptions, check
 from figproof.rules import RULES
+from figproof.rules.base import Rule
 from figproof.run.execute import Runner
 
 DOCS = Path(__file__).resolve().parents[1] / "docs" / "rules"
 
 
-def _repo(tmp_path: Path, name: str, script: str, committed: Path | None) -> Path:
+def _repo(tmp_path: Path, name: str, script: str, committed: Path | None, rule: Rule | None = None) -> Path:
     repo = tmp_path / name
     repo.mkdir()
-    (repo / "figproof.toml").write_text("timeout = 60\n")
+    # an opt-in rule is turned on the way its documentation says: by giving it a severity
+    on = f'\n[rules.{rule.id}]\nseverity = "{rule.severity}"\n' if rule is not None and rule.opt_in else ""
+    (repo / "figproof.toml").write_text("timeout = 60\n" + on)
     if committed is not None:
         shutil.copytree(committed, repo, dirs_exist_ok=True)
     (repo / "fig.py").write_text(script)
@@ -51,9 +54,9 @@ def _rules_found(repo: Path, rule_id: str, runner: Runner) -> list:
 @pytest.mark.parametrize("rule", RULES, ids=lambda r: r.id)
 def test_bad_raises_and_good_does_not(rule, tmp_path: Path, warm_runner: Runner) -> None:
     committed = _regenerated(tmp_path, rule.good, warm_runner)
-    bad = _rules_found(_repo(tmp_path, "bad", rule.bad, committed), rule.id, warm_runner)
+    bad = _rules_found(_repo(tmp_path, "bad", rule.bad, committed, rule), rule.id, warm_runner)
     assert bad, f"{rule.id}: the Bad example raised nothing"
-    good = _rules_found(_repo(tmp_path, "good", rule.good, committed), rule.id, warm_runner)
+    good = _rules_found(_repo(tmp_path, "good", rule.good, committed, rule), rule.id, warm_runner)
     assert not good, f"{rule.id}: the Good example raised {[f.message for f in good]}"
 
 

@@ -319,6 +319,21 @@ def test_gray_pairs() -> None:
     assert run(colour.colours_confusable_gray, lines_figure("#0072B2", "#E69F00"), lightness_difference=30.0)
 
 
+def test_gray_is_opt_in() -> None:
+    # blue and red of one lightness: a grayscale clash, and nothing else (they differ plainly in hue)
+    from figproof.model.context import RunContext
+    from figproof.rules import apply, by_id
+    from tests.builders import run as run_of
+
+    runs = [run_of(lines_figure("#1f77b4", "#d62728", labels=("2023", "2024")))]
+    assert by_id()["colours-confusable-gray"].opt_in
+    colour_rules = {"colours-confusable-gray", "colours-confusable-cvd"}
+    assert [f.rule for f in apply(runs, RunContext()) if f.rule in colour_rules] == []
+    turned_on = apply(runs, RunContext(), {"colours-confusable-gray": ("note", {})})
+    assert [(f.rule, f.severity) for f in turned_on if f.rule in colour_rules] == [("colours-confusable-gray", "note")]
+    assert [f.rule for f in apply(runs, RunContext(), only=["colours-confusable-gray"])] == ["colours-confusable-gray"]
+
+
 # --- low-contrast ---------------------------------------------------------------------------------
 
 

@@ -23,6 +23,7 @@ if TYPE_CHECKING:
     from figproof.model.records import ScriptRun
     from figproof.pipeline import Checked
     from figproof.report.write import ReportRequest
+    from figproof.rules.base import Rule
 
 
 class ExitCode(enum.IntEnum):
@@ -182,8 +183,18 @@ def cmd_rules(args: argparse.Namespace) -> int:
 
     width = max(len(r.id) for r in RULES)
     for r in RULES:
-        print(f"{r.id:<{width}}  {r.severity:<7}  {r.summary}")
+        print(f"{r.id:<{width}}  {'opt-in' if r.opt_in else r.severity:<7}  {r.summary}")
+    if any(r.opt_in for r in RULES):
+        print(f"\nopt-in: runs only when figproof.toml gives the rule a severity, for example "
+              f"[rules.{next(r.id for r in RULES if r.opt_in)}] severity = \"note\"")
     return ExitCode.PASSED
+
+
+def _opt_in_words(r: Rule) -> str:
+    if not r.opt_in:
+        return ""
+    return (f" Opt-in: it runs only when figproof.toml gives it a severity ([rules.{r.id}] "
+            f"severity = \"{r.severity}\").")
 
 
 def explain_text(rule_id: str) -> str:
@@ -201,7 +212,8 @@ def explain_text(rule_id: str) -> str:
     if rule_id not in catalogue:
         raise UsageError(f"unknown rule {rule_id!r}; `figproof rules` lists them")
     r = catalogue[rule_id]
-    out = [*note, f"{r.id}: {r.summary}", "", f"Default severity: {r.severity}. Scope: {r.scope}.", "",
+    head = f"Default severity: {r.severity}. Scope: {r.scope}." + _opt_in_words(r)
+    out = [*note, f"{r.id}: {r.summary}", "", head, "",
            "Why it matters", textwrap.fill(r.why, 88), "", "How to fix it", textwrap.fill(r.fix, 88), ""]
     if r.knobs:
         out.append(f"Settings ([tool.figproof.rules.{r.id}])")

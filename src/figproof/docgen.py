@@ -18,7 +18,8 @@ def rule_page(r: Rule) -> str:
     lines = [f"# {r.id}", "", r.summary, "",
              f"Default severity: **{r.severity}**; scope: {r.scope} ("
              + ("judged from the drawn figure" if r.scope == "figure" else "judged from the run of the script")
-             + ").", ""]
+             + ")." + (f" **Opt-in**: it runs only when the config gives it a severity (`severity = \"{r.severity}\"` "
+                       f"under `[tool.figproof.rules.{r.id}]`)." if r.opt_in else ""), ""]
     if r.former_ids:
         lines += ["Formerly " + ", ".join(f"`{old}`" for old in r.former_ids)
                   + ": the old id is still accepted in config tables, allow comments and the accepted-findings "
@@ -43,7 +44,7 @@ def rule_page(r: Rule) -> str:
 
 def index_page() -> str:
     lines = ["# Rules", "", "| rule | default severity | what it finds |", "|---|---|---|"]
-    lines += [f"| [{r.id}]({r.id}.md) | {r.severity} | {r.summary} |" for r in RULES]
+    lines += [f"| [{r.id}]({r.id}.md) | {r.severity}{' (opt-in)' if r.opt_in else ''} | {r.summary} |" for r in RULES]
     return "\n".join(lines) + "\n"
 
 

@@ -49,7 +49,9 @@ def _descriptor(r: Rule) -> dict[str, Any]:
         "fullDescription": {"text": r.why},
         # The fix text uses backticks for code, so it is also valid markdown.
         "help": {"text": r.fix, "markdown": r.fix},
-        "defaultConfiguration": {"level": LEVELS.get(r.severity, "warning")},
+        # SARIF 2.1.0 section 3.50.3: an opt-in rule is not enabled unless configured
+        "defaultConfiguration": {"level": LEVELS.get(r.severity, "warning"),
+                                 **({"enabled": False} if r.opt_in else {})},
         "properties": {
             "confidence": r.confidence,
             "precision": PRECISION.get(r.confidence, "medium"),

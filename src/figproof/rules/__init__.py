@@ -111,6 +111,8 @@ def apply(
 ) -> list[Finding]:
     """Run every enabled rule (or the rules in ``only``); ``settings`` maps rule id to (severity or "off", knobs).
 
+    An opt-in rule runs only when ``settings`` gives it a severity or ``only`` names it.
+
     Hits are grouped so each cause is reported once (see :class:`figproof.model.findings.Hit`).
     """
     settings = settings or {}
@@ -120,7 +122,7 @@ def apply(
         if only is not None and r.id not in only:
             continue
         severity, overrides = settings.get(r.id, (None, {}))
-        if severity == "off":
+        if severity == "off" or (r.opt_in and severity is None and only is None):
             continue
         sev = severity
         knobs = {**r.defaults(), **overrides}

@@ -50,6 +50,7 @@ class Rule:
     good: str
     check: Callable[..., Iterator[Hit]] = field(repr=False)
     former_ids: tuple[str, ...] = ()  # ids this rule had before, oldest first; still accepted, with a note
+    opt_in: bool = False  # runs only when the config gives it a severity (or a caller asks for it by id)
 
     def defaults(self) -> dict[str, float]:
         return {k.name: k.default for k in self.knobs}
@@ -73,6 +74,7 @@ def rule(
     scope: str = "figure",
     knobs: tuple[Knob, ...] = (),
     former_ids: tuple[str, ...] = (),
+    opt_in: bool = False,
 ) -> Callable[[Callable[..., Iterator[Hit]]], Rule]:
     """Turn a check function into a :class:`Rule`; its docstring's first line is the summary."""
     if severity not in SEVERITIES:
@@ -99,6 +101,7 @@ def rule(
             good=inspect.cleandoc(good) + "\n",
             check=fn,
             former_ids=former_ids,
+            opt_in=opt_in,
         )
 
     return wrap

@@ -351,6 +351,7 @@ def _pairs_hit(g: AxesPairs, clashes: list[_Clash], what: str) -> Hit:
     "colours-confusable-gray",
     severity="note",
     confidence="likely",
+    opt_in=True,
     knobs=(
         Knob(name="lightness_difference", default=8.0, minimum=0.0,
              help="CIE L* difference below which two colours look alike in grayscale"),
@@ -361,6 +362,10 @@ def _pairs_hit(g: AxesPairs, clashes: list[_Clash], what: str) -> Hit:
         achromatopsia see no hue at all. Two series that differ only in hue become the same gray. The
         lightness a grayscale rendering keeps is CIE L*; figproof compares it for every pair of colours
         that must be told apart in one axes, after blending them over the axes background.
+        On screen, colours of clearly different hue (blue and red) are told apart by every reader even at
+        one lightness, and colour-vision deficiency is `colours-confusable-cvd`'s business; so this rule
+        is opt-in, for figures bound for grayscale print (a thesis, a journal that prints in black and
+        white): give it a severity in figproof.toml to turn it on.
     """,
     fix="""
         Make the series differ in lightness (a light and a dark colour, as in the ColorBrewer or Okabe &
