@@ -300,18 +300,25 @@ def _children_of(pid: int) -> list[int]:
 @pytest.mark.skipif(not Path("/proc/self/stat").exists(), reason="reads /proc (Linux) to list processes")
 def test_a_spare_child_killed_from_outside_is_replaced(tmp_path: Path) -> None:
     # the server forks the next script's child ahead of its request; if that spare dies, the next run forks anew
+    import select
     import signal
-    import time
 
     repo = write_repo(tmp_path / "repo", {f"s{i}.py": f"import matplotlib.pyplot as plt\nplt.plot([{i}, 2])\n"
                                           for i in range(2)})
     with WarmPool() as pool:
         server = pool._proc.pid if pool._proc else 0
-        deadline = time.monotonic() + 10
-        while not (spares := _children_of(server)) and time.monotonic() < deadline:
-            time.sleep(0.05)
+        assert server, "the warm pool did not start"
+        spares = _children_of(server)  # the server forks its spare before it says it is ready
         assert len(spares) == 1  # exactly one child waits before any request
-        os.kill(spares[0], signal.SIGKILL)
+        # wait until the spare has really exited (its pidfd turns readable when it ends), so the request below
+        # meets a dead spare; a kill still in flight would let the spare take the request and die with it
+        pidfd = os.pidfd_open(spares[0])
+        try:
+            os.kill(spares[0], signal.SIGKILL)
+            ended, _, _ = select.select([pidfd], [], [], 60)  # a guard against hanging, not a synchronisation
+            assert ended == [pidfd]
+        finally:
+            os.close(pidfd)
         runs = run_all(repo, ["s0.py", "s1.py"], tmp_path / "art", pool)
         assert [r.status for r in runs] == ["ok", "ok"]
         assert all("warm-pool" in r.isolation for r in runs)
