@@ -86,6 +86,38 @@ def test_rules_science_and_model_import_no_drawing_or_image_library() -> None:
     assert offenders == []
 
 
+# What each folder may import, as the table in docs/architecture.md says ("hashing" and "notebook" are
+# standard-library helpers at the top level that every layer may use; "figproof" is the package's version).
+SHARED = {"figproof", "hashing", "notebook"}
+MAY_IMPORT = {
+    "model": set(),
+    "science": set(),
+    "rules": {"model", "science"},
+    "policy": {"model"},
+    "discover": {"config", "model"},
+    "child": {"model"},
+    "run": {"model", "discover"},
+    "compare": {"model", "run"},
+}
+
+
+def _layer(module: str) -> str:
+    parts = module.split(".")
+    return parts[1] if len(parts) > 1 else "figproof"
+
+
+def test_each_folder_imports_only_the_layers_it_may() -> None:
+    offenders = []
+    for name, targets in sorted(_graph().items()):
+        allowed = MAY_IMPORT.get(_layer(name))
+        if allowed is None:
+            continue
+        bad = sorted(t for t in targets if _layer(t) not in {_layer(name), *allowed, *SHARED})
+        if bad:
+            offenders.append(f"{name}: {bad}")
+    assert offenders == []
+
+
 @pytest.mark.parametrize(("module", "absent"), [
     ("figproof.rules", ("matplotlib", "PIL")),
     ("figproof.config", ("figproof.rules", "matplotlib", "PIL")),

@@ -235,8 +235,9 @@ def _one_line_errors() -> tuple[type[Exception], ...]:
     from figproof.discover.inventory import DiscoveryError
     from figproof.discover.shard import ShardError
     from figproof.policy.accept import AcceptedFileError
+    from figproof.report.merge import MergeError
 
-    return (ConfigError, DiscoveryError, AcceptedFileError, GitError, ShardError)
+    return (ConfigError, DiscoveryError, AcceptedFileError, GitError, ShardError, MergeError)
 
 
 def _progress(args: argparse.Namespace) -> Callable[[ScriptRun, int, int], None] | None:
@@ -402,7 +403,7 @@ def cmd_accept(args: argparse.Namespace) -> int:
 
 
 def cmd_merge(args: argparse.Namespace) -> int:
-    from figproof.discover.shard import ShardError
+    from figproof.report.merge import MergeError
     from figproof.report.write import write_merged
 
     texts = []
@@ -413,7 +414,7 @@ def cmd_merge(args: argparse.Namespace) -> int:
             raise UsageError(f"{name}: cannot read the report ({exc.strerror})") from None
     try:
         text, passed = write_merged(texts, report_request(args), list(args.reports))
-    except ShardError as exc:
+    except MergeError as exc:
         raise UsageError(str(exc)) from None
     if not args.quiet:
         print(text)

@@ -277,7 +277,7 @@ def progress_printer(*, quiet: bool, verbose: bool,
 
 def write_merged(texts: list[str], request: ReportRequest, names: list[str] | None = None) -> tuple[str, bool]:
     """Merge shard reports and write the requested outputs; return the markdown and the verdict."""
-    from figproof.discover.shard import merge_reports
+    from figproof.report.merge import merge_reports
     from figproof.rules import by_id
 
     merged = merge_reports(texts, names)
