@@ -16,6 +16,7 @@ from figproof import __version__, rules
 from figproof.compare.runs import committed_vs_regenerated, first_vs_second, notebook_outputs, other_writers
 from figproof.config import Config, load_config
 from figproof.discover.gitrepo import changed_since
+from figproof.discover.imports import import_edges
 from figproof.discover.inventory import choose_working_dir, discover
 from figproof.discover.outputs import saved_names
 from figproof.discover.shard import select_shard
@@ -95,12 +96,15 @@ def scripts_touched_by(root: Path, scripts: tuple[str, ...], changed: tuple[str,
     """Scripts that changed, or that depend on a changed file.
 
     A script's dependencies are what it read and imported when it last ran (from the result cache,
-    ``recorded``); a script never run before is picked when its code names a changed file by path or
-    file name, a selection heuristic until its first run records what it really reads.
+    ``recorded``); a script never run before is picked when it imports a changed repo module (directly or
+    through other repo modules), or when its code names a changed file by path or file name, a selection
+    heuristic until its first run records what it really reads.
     """
     changed_set = set(changed)
     data = [c for c in changed_set if c not in scripts]
     recorded = recorded or {}
+    modules = [c for c in data if c.endswith(".py")]
+    importing = _importing(root, scripts, modules) if modules else set()
     picked = []
     for script in scripts:
         if script in changed_set:
@@ -108,9 +112,25 @@ def scripts_touched_by(root: Path, scripts: tuple[str, ...], changed: tuple[str,
         elif script in recorded:
             if recorded[script] & changed_set:
                 picked.append(script)
-        elif data and _names_any(root / script, data):
+        elif script in importing or (data and _names_any(root / script, data)):
             picked.append(script)
     return picked
+
+
+def _importing(root: Path, scripts: tuple[str, ...], modules: list[str]) -> set[str]:
+    """The scripts that import one of ``modules``, directly or through other repo modules."""
+    importers: dict[str, list[str]] = {}
+    for f, deps in import_edges(root, scripts).items():
+        for dep in deps:
+            importers.setdefault(dep, []).append(f)
+    reached: set[str] = set()
+    queue = list(modules)
+    while queue:
+        for user in importers.get(queue.pop(), ()):
+            if user not in reached:
+                reached.add(user)
+                queue.append(user)
+    return reached & set(scripts)
 
 
 def _names_any(path: Path, files: list[str]) -> bool:
@@ -186,7 +206,7 @@ def _check(path: Path, config: Config, inventory: Inventory, options: CheckOptio
     summary = summarise(runs, findings, config.fail_on, tree_changed=bool(tree_changes))
     result = CheckResult(root=_shown_root(config.root, path), version=__version__, runs=runs,
                          findings=tuple(findings), summary=summary, fail_on=config.fail_on, notes=tuple(notes),
-                         not_run=not_run, pending=tuple(pending),
+                         not_run=not_run, pending=tuple(pending), helpers=inventory.helpers,
                          tree_changes=tree_changes)
     return Checked(result=result, config=config, inventory=inventory, context=context, artifacts=artifacts,
                    cached=cached)

@@ -28,6 +28,7 @@ from pathlib import Path
 
 from figproof.config import Config
 from figproof.discover import gitrepo
+from figproof.discover.imports import import_edges
 from figproof.model.context import Inventory
 from figproof.model.records import WorkingDir
 from figproof.notebook import MATPLOTLIB_MAGIC, Cell, NotebookError, code_cells, python_source
@@ -286,12 +287,124 @@ def _draws(path: Path) -> bool:
     return code_draws(raw)
 
 
+# --------------------------------------------------------------------------- the repo's import graph
+
+# Calls that draw or save a figure, by their last name (pyplot, Axes, Figure, seaborn, pandas, plotnine).
+DRAW_CALLS = frozenset({
+    "plot", "scatter", "bar", "barh", "hist", "hist2d", "imshow", "matshow", "pcolor", "pcolormesh", "contour",
+    "contourf", "errorbar", "boxplot", "violinplot", "fill_between", "fill_betweenx", "stem", "step", "stairs",
+    "pie", "hexbin", "quiver", "streamplot", "stackplot", "eventplot", "loglog", "semilogx", "semilogy",
+    "figure", "subplots", "subplot", "subplot_mosaic", "add_subplot", "savefig", "show", "imsave",
+    "heatmap", "lineplot", "scatterplot", "barplot", "histplot", "kdeplot", "ecdfplot", "catplot", "relplot",
+    "displot", "pairplot", "jointplot", "lmplot", "regplot", "stripplot", "swarmplot", "countplot", "pointplot",
+    "boxenplot", "clustermap", "scatter_matrix", "ggsave",
+})
+
+
+def _callee(node: ast.Call) -> str:
+    func = node.func
+    return func.id if isinstance(func, ast.Name) else func.attr if isinstance(func, ast.Attribute) else ""
+
+
+def _is_main_guard(stmt: ast.stmt) -> bool:
+    """``if __name__ == "__main__":``: the module is meant to be run."""
+    test = stmt.test if isinstance(stmt, ast.If) else None
+    return (isinstance(test, ast.Compare) and isinstance(test.left, ast.Name) and test.left.id == "__name__"
+            and any(isinstance(c, ast.Constant) and c.value == "__main__" for c in test.comparators))
+
+
+def draws_at_top_level(tree: ast.Module) -> bool:
+    """Whether running the module draws: a drawing call outside its functions and classes, a call to one of
+    its own functions that draws, or a ``__main__`` block (a module meant to be run is a script)."""
+    functions = {s.name: s for s in tree.body if isinstance(s, (ast.FunctionDef, ast.AsyncFunctionDef))}
+    drawing: set[str] = set()
+    changed = True
+    while changed:  # a function draws when it makes a drawing call or calls one of the module's drawing functions
+        changed = False
+        for name, fn in functions.items():
+            calls = {_callee(n) for n in ast.walk(fn) if isinstance(n, ast.Call)}
+            if name not in drawing and calls & (DRAW_CALLS | drawing):
+                drawing.add(name)
+                changed = True
+    for stmt in tree.body:
+        if isinstance(stmt, (ast.FunctionDef, ast.AsyncFunctionDef, ast.ClassDef, ast.Import, ast.ImportFrom)):
+            continue
+        if _is_main_guard(stmt):
+            return True
+        if {_callee(n) for n in ast.walk(stmt) if isinstance(n, ast.Call)} & (DRAW_CALLS | drawing):
+            return True
+    return False
+
+
+def _reaching(target: str, importers: dict[str, list[str]]) -> set[str]:
+    """The files that import ``target``, directly or through others."""
+    seen: set[str] = set()
+    queue = [target]
+    while queue:
+        for user in importers.get(queue.pop(), ()):
+            if user not in seen:
+                seen.add(user)
+                queue.append(user)
+    return seen
+
+
+class ImportGraph:
+    """Which candidate files are figure scripts and which are helper modules, from the repo's own imports.
+
+    A file draws when its own code imports a plotting library (see :func:`code_draws`).  A script is a figure
+    script when it draws or imports (directly or through other repo modules) a repo module that draws.  A
+    ``.py`` module that draws, that other candidates import and that draws nothing when run on its own
+    (:func:`draws_at_top_level`) is a helper: it is not run, the scripts that import it are.  Code is read,
+    never run; import cycles end where a module was already seen.
+    """
+
+    def __init__(self, root: Path, candidates: list[str]) -> None:
+        self.root = root
+        self._own = {f: _draws(root / f) for f in candidates}
+        edges = import_edges(root, candidates)
+        importers: dict[str, list[str]] = {}
+        for f, deps in edges.items():
+            for dep in deps:
+                importers.setdefault(dep, []).append(f)
+        # what draws, directly or through the modules it imports: walk the imports backwards from what draws
+        drawing = {f for f in edges if self._draws(f)}
+        queue = list(drawing)
+        while queue:
+            for user in importers.get(queue.pop(), ()):
+                if user not in drawing:
+                    drawing.add(user)
+                    queue.append(user)
+        self.scripts: list[str] = []
+        helpers: list[str] = []
+        for f in candidates:
+            if f not in drawing:
+                continue
+            if f in importers and f.endswith(".py") and not self._runs_alone(f):
+                helpers.append(f)
+            else:
+                self.scripts.append(f)
+        script_set = set(self.scripts)
+        # each helper with the figure scripts that import it, directly or through other repo modules
+        self.helpers = tuple((h, tuple(sorted(_reaching(h, importers) & script_set))) for h in helpers)
+
+    def _draws(self, rel: str) -> bool:
+        own = self._own.get(rel)
+        return _draws(self.root / rel) if own is None else own
+
+    def _runs_alone(self, rel: str) -> bool:
+        raw = _read(self.root / rel)
+        tree = _parse(raw) if raw is not None else None
+        return tree is None or (isinstance(tree, ast.Module) and draws_at_top_level(tree))
+
+
 # --------------------------------------------------------------------------- discovery
 
 
-def _scripts(config: Config, files: list[str], skip: _Skipper) -> tuple[list[str], list[str]]:
-    """(figure scripts in run order, figure scripts that ``exclude`` keeps out)."""
+def _scripts(config: Config, files: list[str], skip: _Skipper
+             ) -> tuple[list[str], list[str], tuple[tuple[str, tuple[str, ...]], ...]]:
+    """(figure scripts in run order, figure scripts that ``exclude`` keeps out, helper modules and their users)."""
     candidates = [f for f in files if f.endswith(SCRIPT_SUFFIXES) and not skip.path(f)]
+    helpers: tuple[tuple[str, tuple[str, ...]], ...] = ()
     if config.include:
         chosen: set[str] = set()
         for pattern in config.include:
@@ -301,10 +414,12 @@ def _scripts(config: Config, files: list[str], skip: _Skipper) -> tuple[list[str
             chosen.update(hits)
         picked = sorted(chosen)
     else:
-        picked = [f for f in candidates if not _is_test(f) and _draws(config.root / f)]
+        graph = ImportGraph(config.root, [f for f in candidates if not _is_test(f)])
+        picked = graph.scripts
+        helpers = graph.helpers
     excluded = [f for f in picked if _any_match(f, config.exclude)]
     picked = [f for f in picked if f not in excluded]
-    return _ordered(config, picked, set(files)), excluded
+    return _ordered(config, picked, set(files)), excluded, helpers
 
 
 def _ordered(config: Config, picked: list[str], files: set[str]) -> list[str]:
@@ -364,7 +479,7 @@ def discover(config: Config, *, use_git: bool = True) -> Inventory:
     root = config.root
     files, is_git = iter_files(root, use_git=use_git)
     skip = _Skipper(root, files)
-    scripts, excluded = _scripts(config, files, skip)
+    scripts, excluded, helpers = _scripts(config, files, skip)
     own = _own_files(config)
     visible = [f for f in files if not skip.path(f) and not any(f == o or f.startswith(o + "/") for o in own)]
     data = [f for f in visible if _suffix(f) in DATA_SUFFIXES and not _NOT_DATA.match(f.rsplit("/", 1)[-1])]
@@ -377,6 +492,7 @@ def discover(config: Config, *, use_git: bool = True) -> Inventory:
         tracked=tuple(files) if is_git else (),
         is_git=is_git,
         excluded=tuple(f for f in excluded if f not in scripts),
+        helpers=tuple((h, users) for h, users in helpers if h not in scripts),
     )
 
 

@@ -53,6 +53,8 @@ class Inventory:
     tracked: tuple[str, ...] = ()  # every file git tracks (empty when not a git repo)
     is_git: bool = False
     excluded: tuple[str, ...] = ()  # figure scripts that `exclude` keeps from running
+    # repo modules that draw only when a script calls them: (module, the figure scripts that import it); not run
+    helpers: tuple[tuple[str, tuple[str, ...]], ...] = ()
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)

@@ -87,6 +87,7 @@ class Finding(Serialisable):
     accepted_by: str | None = None  # "comment" (inline allow) or "file" (accepted-findings entry)
     instances: tuple[Instance, ...] = ()  # every occurrence this one finding stands for, worst first
     cause_line: int | None = None  # a line of the same file that brought it about; an allow comment there counts
+    script: str | None = None  # the script or notebook whose run it comes from (the location may be in a helper)
 
     def sort_key(self) -> tuple[str, int, str, str]:
         return (self.path, self.line or 0, self.rule, self.message)
@@ -123,6 +124,7 @@ class CheckResult:
     fail_on: str = "error"
     notes: tuple[str, ...] = ()
     not_run: tuple[str, ...] = ()  # figure scripts a partial check did not run (selection, shard, exclude)
+    helpers: tuple[tuple[str, tuple[str, ...]], ...] = ()  # repo modules not run: (module, figure scripts using it)
     # findings a partial check cannot judge alone (orphans a script that did not run may write); merge judges them
     pending: tuple[Finding, ...] = ()
     tree_changes: tuple[TreeChange, ...] = ()  # the working-tree guard's differences: the check fails

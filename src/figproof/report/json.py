@@ -47,6 +47,8 @@ def finding_json(f: Finding) -> dict[str, Any]:
     }
     if f.cell is not None:
         out["cell"] = f.cell
+    if f.script is not None and f.script != f.path:  # located in a helper module the script ran
+        out["script"] = f.script
     out["instances"] = [_instance(i) for i in f.instances]
     if f.accepted is not None:
         out["accepted"] = f.accepted
@@ -67,6 +69,8 @@ def report_dict(result: CheckResult, *, timings: bool = False) -> dict[str, Any]
         "notes": list(result.notes),
         "working_tree_changes": [{"path": c.path, "change": c.change} for c in result.tree_changes],
     }
+    if result.helpers:  # repo modules not run on their own: the scripts that import them ran
+        out["helpers"] = [{"path": h, "used_by": list(users)} for h, users in result.helpers]
     if result.not_run:  # a partial check: which figure scripts did not run, and what it could not judge alone
         out["not_run"] = list(result.not_run)
         out["pending"] = [finding_json(f) for f in result.pending]

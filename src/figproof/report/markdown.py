@@ -77,7 +77,8 @@ def _findings_table(findings: list[Finding], images: Mapping[str, str], captions
             if drifted:
                 said = f": {_cell(captions[drifted[0]])}" if drifted[0] in captions else ""
                 msg += f" ([what changed]({images[drifted[0]]}){said})"
-        rows.append(f"| `{_cell(where(f))}` | {f.rule} | {f.severity} ({f.confidence}) | {msg} |")
+        ran = f" (run of `{_cell(f.script)}`)" if f.script is not None and f.script != f.path else ""
+        rows.append(f"| `{_cell(where(f))}`{ran} | {f.rule} | {f.severity} ({f.confidence}) | {msg} |")
     return rows
 
 
@@ -94,6 +95,18 @@ def _scripts_table(runs: tuple[ScriptRun, ...], timings: bool) -> list[str]:
             row += f" {r.seconds:.1f} |"
         rows.append(row)
     return rows
+
+
+def _helpers(result: CheckResult) -> list[str]:
+    """Repo modules that draw only when a script calls them: not run, listed with the scripts that use them."""
+    if not result.helpers:
+        return []
+    lines = ["Helper modules (not run on their own; their figures and failures are the importing scripts'):", ""]
+    for path, users in result.helpers:
+        shown = ", ".join(f"`{_cell(u)}`" for u in users[:10]) + (f" and {len(users) - 10} more"
+                                                                   if len(users) > 10 else "")
+        lines.append(f"- `{_cell(path)}`, used by {shown or 'no figure script that ran'}")
+    return [*lines, ""]
 
 
 def partial_notes(result: CheckResult) -> list[str]:
@@ -162,6 +175,7 @@ def render(result: CheckResult, *, images: Mapping[str, str] | None = None, timi
         lines += ["", "</details>", ""]
     if result.runs:
         lines += ["### Scripts", "", *_scripts_table(result.runs, timings), ""]
+    lines += _helpers(result)
     if provenance is not None:
         lines += _provenance(provenance)
     notes = partial_notes(result) + list(result.notes) + [f"`{r.path}`: {n}" for r in result.runs for n in r.notes]

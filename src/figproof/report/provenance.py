@@ -78,10 +78,14 @@ def _inputs(events: Iterable[FileEvent], writers: Mapping[str, tuple[str, ...]],
     return [found[k] for k in sorted(found)]
 
 
-def _source_json(source: Source | None) -> dict[str, Any]:
+def _source_json(source: Source | None, script: str) -> dict[str, Any]:
+    """The saving line; ``file`` names the helper module it lies in when that is not the script."""
     if source is None:
         return {"line": None, "cell": None}
-    return {"line": source.line, "cell": source.cell}
+    out: dict[str, Any] = {"line": source.line, "cell": source.cell}
+    if source.path and source.path != script:
+        out["file"] = source.path
+    return out
 
 
 def build_manifest(
@@ -129,7 +133,7 @@ def build_manifest(
             entry = {
                 "path": ev.path,
                 "script": run.path,
-                **_source_json(ev.source),
+                **_source_json(ev.source, run.path),
                 "figure": owner.get(ev.path),
                 "format": ev.format,
                 "inputs": _inputs(run.events, writers, run.path, cell),
@@ -148,7 +152,8 @@ def build_manifest(
             for path in fig.outputs:
                 if is_repo_path(path) and path not in figures:
                     outputs.append(path)
-                    figures[path] = {"path": path, "script": run.path, **_source_json(fig.source), "figure": fig.id,
+                    figures[path] = {"path": path, "script": run.path, **_source_json(fig.source, run.path),
+                                     "figure": fig.id,
                                      "format": path.rsplit(".", 1)[-1].lower() if "." in path else None,
                                      "inputs": _inputs(run.events, writers, run.path)}
         scripts.append({
@@ -176,9 +181,13 @@ def provenance_rows(manifest: Mapping[str, Any]) -> list[tuple[str, str, str]]:
     rows: list[tuple[str, str, str]] = []
     for fig in manifest.get("figures", ()):
         where = fig["script"]
+        at = fig.get("file")  # saved by a helper module the script imports
+        line = f"{at}:{fig['line']}" if at and fig.get("line") is not None else at
         if fig.get("cell") is not None:
             where += f" cell {fig['cell']}"
-        if fig.get("line") is not None:
+        if line:
+            where += f" (at {line})"
+        elif fig.get("line") is not None:
             where += f":{fig['line']}"
         inputs = ", ".join(i["path"] + ("" if i.get("exists", True) else " (missing)") for i in fig["inputs"])
         rows.append((fig["path"], where, inputs or "—"))

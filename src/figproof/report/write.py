@@ -306,6 +306,7 @@ def result_from_json(data: dict[str, Any]) -> CheckResult:
     return CheckResult(root=data.get("root", "."), version=data["tool"]["version"], runs=(), findings=findings,
                        summary=summary, fail_on=data.get("fail_on", "error"), notes=tuple(data.get("notes", [])),
                        not_run=tuple(data.get("not_run", ())), pending=pending,
+                       helpers=tuple((str(h["path"]), tuple(h["used_by"])) for h in data.get("helpers", ())),
                        tree_changes=tuple(TreeChange(path=c["path"], change=c["change"])
                                           for c in data.get("working_tree_changes", [])))
 

@@ -57,10 +57,12 @@ def _instances(hit: Hit, fallback: Source, figure: str | None) -> tuple[Instance
     return tuple(out)
 
 
-def _finding(r: Rule, hit: Hit, *, fallback: Source, figure: str | None, severity: Severity | None) -> Finding:
+def _finding(r: Rule, hit: Hit, *, fallback: Source, figure: str | None, severity: Severity | None,
+             script: str | None = None) -> Finding:
     """``severity`` is the user's configured one: it wins over the hit's own, which wins over the default."""
     src = hit.source or fallback
     return Finding(
+        script=script,
         rule=r.id,
         severity=severity or hit.severity or r.severity,
         confidence=hit.confidence or r.confidence,
@@ -131,7 +133,7 @@ def apply(
             script = Source(path=run_.path)
             if r.scope == "run":
                 for hit in r.check(run_, context, knobs):
-                    f = _finding(r, hit, fallback=script, figure=None, severity=sev)
+                    f = _finding(r, hit, fallback=script, figure=None, severity=sev, script=run_.path)
                     if hit.group:
                         grouped.setdefault(hit.group, []).append((f, run_.path))
                     else:
@@ -141,7 +143,7 @@ def apply(
                 fallback = fig.source or script
                 per_figure: dict[str, list[Finding]] = {}
                 for hit in r.check(fig, knobs):
-                    f = _finding(r, hit, fallback=fallback, figure=fig.id, severity=sev)
+                    f = _finding(r, hit, fallback=fallback, figure=fig.id, severity=sev, script=run_.path)
                     if hit.group:
                         grouped.setdefault(hit.group, []).append((f, fig.id))
                     else:
@@ -154,7 +156,10 @@ def apply(
                 found.append(items[0][0])
             else:
                 noun = "scripts" if r.scope == "run" else "figures"
-                found.append(_merge([f for f, _ in items], f"{len(where)} {noun}: {_names(where)}"))
+                merged = _merge([f for f, _ in items], f"{len(where)} {noun}: {_names(where)}")
+                if len({f.script for f, _ in items}) > 1:  # one cause across scripts: no one script owns it
+                    merged = dataclasses.replace(merged, script=None)
+                found.append(merged)
     return sorted(found, key=Finding.sort_key)
 
 

@@ -322,7 +322,8 @@ class CachingRunner:
         # decided before the run, so an edit made while it runs cannot be stored against the old result
         # sys.path[0] is how figproof itself was started (its bin folder, or the cwd under -m), not the child's
         search = search_folders(root, task.script, task.working_dir, sys.path[1:])
-        imports = local_imports(root, task.script, search)
+        cwd = root if task.working_dir == "root" else (root / task.script).parent
+        imports = local_imports(root, task.script, search, bases=(cwd,))
         before = {p: self._hasher.sha256(root / p) for p in imports.files}
         run = self.inner().run(task, options)
         if script_sha is None or not cacheable(run):
