@@ -461,3 +461,30 @@ def test_default_orange_passes_unless_strict_wcag() -> None:
     strict = {**colour.low_contrast.defaults(), "strict_wcag": 1.0}
     (hit,) = colour.low_contrast.check(figure(axes(lines=[orange])), strict)
     assert "2.53:1, below 3:1" in hit.message
+
+
+def test_pale_marks_across_panels_are_one_finding() -> None:
+    # one pale palette over four facets is one choice: one finding naming the panels (yellow on white 1.07:1,
+    # WCAG 2.1 relative luminance)
+    panels = [axes(index=k, lines=[line([0, 1], [0, 1], color=hexrgba("#ffff00"), label=f"plot {k}")])
+              for k in range(4)]
+    (hit,) = run(colour.low_contrast, figure(*panels))
+    assert "; 3 more marks too in 4 panels" in hit.message and len(hit.details) == 4
+
+
+def test_lines_in_the_background_colour_are_outlines() -> None:
+    # a white edge drawn on white (a ridge plot's outline over its fill) is a separator, not a faint data line
+    edge = line([0, 1], [0, 1], color=hexrgba("#ffffff"), label="edge")
+    assert run(colour.low_contrast, figure(axes(lines=[edge]))) == []
+    assert run(colour.low_contrast, figure(axes(lines=[edge])), strict_wcag=1.0)
+
+
+def test_markers_on_another_mark_pass_by_colour_difference() -> None:
+    # red dots on a blue area: WCAG luminance ratio about 1.2:1 (relative luminance 0.213 and 0.168), but a
+    # CAM02-UCS difference of about 71 (colorspacious): every reader sees them; grey on grey does not pass
+    def on(face: str, under: str) -> Any:
+        pts = points([0.2, 0.5], [0.3, 0.6], color=hexrgba(face))
+        return type(pts)(**{**{f: getattr(pts, f) for f in pts.__dataclass_fields__},
+                            "backdrops": np.tile(hexrgba(under), (2, 1))})
+    assert run(colour.low_contrast, figure(axes(points=[on("#ff0000", "#1f77b4")]))) == []
+    assert run(colour.low_contrast, figure(axes(points=[on("#dddddd", "#d0d0d0")])))

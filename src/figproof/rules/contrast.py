@@ -30,6 +30,7 @@ from figproof.rules.base import Knob, Knobs, counted, rule
 from figproof.science import colour as cs
 
 WCAG_GRAPHICS = 3.0  # WCAG 2.1 SC 1.4.11: graphical objects need 3:1 against adjacent colours
+MARK_DELTA_E = 20.0  # CAM02-UCS difference that tells a mark from another mark beneath it: common practice
 DENSITY_ALPHA = 0.3  # markers this see-through are drawn faint on purpose (as points-hidden's density_alpha)
 
 _BOLD = {"bold", "heavy", "extra bold", "extrabold", "ultrabold", "black"}
@@ -103,8 +104,12 @@ def _colour_words(hex_: str) -> str:
         figproof measures each text against what is really beneath it (its
         own box, the legend frame, the image or mesh cell, bar or violin body under it, the axes face
         inside the axes, the figure face outside) and each marker against what it sits on, after
-        blending transparency. Panels with their axis turned off are pictures, not plots, and their
-        marks are not judged. The ratio is never rounded: 2.999 fails 3:1.
+        blending transparency. A marker on another mark (a dot on a band or an area) also passes when
+        its colour differs plainly from that mark (CAM02-UCS ΔE' 20 or more): a red dot on a blue area is
+        seen at one luminance. A line drawn in the background's own colour is an outline or separator.
+        Panels with their axis turned off are pictures, not plots, and their marks are not judged. One
+        finding per figure for marks and one for text, naming the panels: a pale palette is one choice.
+        The ratio is never rounded: 2.999 fails 3:1.
     """,
     fix="""
         Darken light text and marks (for example "#595959" or darker on white) or lighten the background;
@@ -117,7 +122,8 @@ def _colour_words(hex_: str) -> str:
         "success criteria 1.4.3 (contrast, minimum) and 1.4.11 (non-text contrast).",
         "Blackwell (1946), Contrast thresholds of the human eye, J. Opt. Soc. Am. 36(11): the threshold "
         "contrast falls as the target grows (from memory).",
-        "Mark ratio 1.8:1, large-mark ratio 1.5:1, large marker 10 pt, thick line 4 pt: common practice (the "
+        "Mark ratio 1.8:1, large-mark ratio 1.5:1, large marker 10 pt, thick line 4 pt, ΔE' 20 between a "
+        "marker and the mark beneath it: common practice (the "
         "lowest ratios of matplotlib's tab10 and seaborn's deep and muted palettes on white are 2.0, 1.95 and 1.9).",
     ),
     bad="""
@@ -141,12 +147,36 @@ def _colour_words(hex_: str) -> str:
 )
 def low_contrast(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
     """Text or data marks whose contrast with what lies beneath them is too low to read."""
-    for ax in figure.axes:
-        yield from _text_hits(ax, figure, knobs)
-        yield from _mark_hits(ax, figure, knobs)
+    # one cause, one finding: a pale palette or a pale text colour is one choice however many panels show it
+    texts = [h for ax in figure.axes for h in _text_hits(ax, figure, knobs)]
+    marks = [h for ax in figure.axes for h in _mark_hits(ax, figure, knobs)]
+    for found, noun in ((texts, "text"), (marks, "mark")):
+        if found:
+            found.sort(key=lambda item: item[0])  # worst first; stable, so drawing order breaks ties
+            yield _one_per_figure([h for _, h in found], noun)
 
 
-def _text_hits(ax: Axes, figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
+_NOUNS = {"mark": ("mark", "marks"), "text": ("group of texts", "groups of texts")}
+
+
+def _one_per_figure(found: list[Hit], noun: str) -> Hit:
+    """The worst hit's words, how many more and in how many panels, every hit kept as details."""
+    head = found[0]
+    if len(found) == 1:
+        return head
+    panels = sorted({h.axes for h in found if h.axes is not None})
+    rest = sum(max(len(h.details), 1) for h in found) - 1
+    where = f" in {len(panels)} panels" if len(panels) > 1 else ""
+    base = head.details[0].message if head.details else head.message
+    one, many = _NOUNS[noun]
+    more = f"; {rest} more {one if rest == 1 else many} too{where}" if rest else ""
+    details = tuple(d for h in found for d in (h.details or (Detail(message=h.message, source=h.source,
+                                                                         axes=h.axes),)))
+    return Hit(message=base + more, source=head.source, axes=head.axes, severity=head.severity,
+               key=f"{noun}s:" + "|".join(sorted(h.key for h in found)), details=details)
+
+
+def _text_hits(ax: Axes, figure: FigureModel, knobs: Knobs) -> Iterator[tuple[float, Hit]]:
     # group texts that share role, colours and size class: ten pale tick labels are one finding
     groups: dict[tuple[str, str, str, bool], list[tuple[Text, float]]] = {}
     for text in ax.texts:
@@ -169,9 +199,9 @@ def _text_hits(ax: Axes, figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
         ratio = min(r for _, r in items)
         quoted = ", ".join(f"'{t.text.strip()[:30]}'" for t, _ in items[:3]) + (", ..." if len(items) > 3 else "")
         what = f"{role} text {quoted}" if len(items) == 1 else f"{len(items)} {role} texts ({quoted})"
-        yield Hit(message=f"{what} in {fg_hex} is hard to read on {_colour_words(bg_hex)}: contrast "
-                          f"{_floor2(ratio)}:1, below {limit:g}:1 for {size} (WCAG 2.1)",
-                  source=items[0][0].source, axes=ax.index, key=f"text:{role}:{fg_hex}:{bg_hex}")
+        yield ratio, Hit(message=f"{what} in {fg_hex} is hard to read on {_colour_words(bg_hex)}: contrast "
+                                 f"{_floor2(ratio)}:1, below {limit:g}:1 for {size} (WCAG 2.1)",
+                         source=items[0][0].source, axes=ax.index, key=f"text:{role}:{fg_hex}:{bg_hex}")
 
 
 @dataclass(frozen=True, slots=True)
@@ -209,6 +239,8 @@ def _marks(ax: Axes, bg: np.ndarray, knobs: Knobs) -> Iterator[_Mark]:
         if ln.role == "data" and ln.linestyle not in ("", " ", "None", "none"):
             large = ln.linewidth >= knobs["thick_line_width"]
             c = np.asarray([ln.color], float)
+            if not strict and _same_as(c[0], bg):
+                continue  # drawn in the background's own colour: an outline or separator (a ridge plot's edge)
             yield _Mark("line", public_label(ln.label), c, np.zeros((0, 4)), bg[None, :3], level(large), large,
                         ln.source)
     for ps in ax.points:
@@ -254,15 +286,45 @@ def _ratios(colors: np.ndarray, under: np.ndarray) -> np.ndarray:
     return np.where(np.isnan(rgba).any(axis=1) | (alpha[:, 0] <= 0.0), 1.0, out)
 
 
-def _mark_hits(ax: Axes, figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
+def _same_as(rgba: np.ndarray, bg: np.ndarray) -> bool:
+    return bool(rgba[3] > 0.0 and np.max(np.abs(np.nan_to_num(rgba[:3]) - bg[:3])) <= 0.02)
+
+
+def _stands_out_on_marks(m: _Mark, bg: np.ndarray, n: int) -> np.ndarray:
+    """Per element: it sits on another mark (not the axes face) and differs from it plainly in colour.
+
+    WCAG's ratio compares luminance against a background; a red dot on a blue area is plain to every
+    reader at one luminance, so on other marks a CAM02-UCS difference of MARK_DELTA_E passes too.
+    """
+    out = np.zeros(n, dtype=bool)
+    if n == 0 or m.under.shape[0] != n:
+        return out
+    on_mark = np.abs(m.under - bg[None, :3]).max(axis=1) > 0.02
+    if not on_mark.any():
+        return out
+    faces = cs.as_rgba(m.faces)
+    faces = np.broadcast_to(faces, (n, 4)) if faces.shape[0] == 1 else faces
+    if faces.shape[0] != n:
+        return out
+    top = np.nan_to_num(faces[on_mark])
+    alpha = np.clip(top[:, 3:4], 0.0, 1.0)
+    shown = top[:, :3] * alpha + m.under[on_mark] * (1.0 - alpha)
+    out[on_mark] = cs.delta_e(shown, m.under[on_mark]) >= MARK_DELTA_E
+    return out
+
+
+def _mark_hits(ax: Axes, figure: FigureModel, knobs: Knobs) -> Iterator[tuple[float, Hit]]:
     if ax.is_colorbar or not ax.axis_on:
         return
     bg = axes_background(ax, figure)
+    strict = knobs["strict_wcag"] >= 0.5
     low: list[tuple[float, str, Source | None, str]] = []
     for m in _marks(ax, bg, knobs):
         r = _ratios(m.faces, m.under)
         if m.edges.shape[0] in (1, r.size) and r.size:
             r = np.maximum(r, _ratios(m.edges, m.under))
+        if not strict:
+            r = np.where(_stands_out_on_marks(m, bg, r.size), np.inf, r)
         if r.size == 0 or not (r < m.limit).any():
             continue
         worst = int(np.argmin(r))
@@ -282,9 +344,9 @@ def _mark_hits(ax: Axes, figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
     low.sort(key=lambda item: item[0])
     rest = len(low) - 1
     more = f"; {rest} more mark{'s' * (rest != 1)} of this axes too" if rest else ""
-    yield Hit(message=low[0][1] + more, source=low[0][2], axes=ax.index, severity="warning",
-              key="marks:" + ",".join(sorted(k for _, _, _, k in low)),
-              details=tuple(Detail(message=msg, source=src, axes=ax.index) for _, msg, src, _ in low))
+    yield low[0][0], Hit(message=low[0][1] + more, source=low[0][2], axes=ax.index, severity="warning",
+                         key="marks:" + ",".join(sorted(k for _, _, _, k in low)),
+                         details=tuple(Detail(message=msg, source=src, axes=ax.index) for _, msg, src, _ in low))
 
 
 # listed in figproof.rules.colour.RULES, the colour family it belongs to
