@@ -30,7 +30,7 @@ import socket
 import sys
 import sysconfig
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from types import FrameType
 from typing import Any, NamedTuple
@@ -38,7 +38,7 @@ from typing import Any, NamedTuple
 import numpy as np
 
 from figproof.hashing import file_sha256
-from figproof.model.records import FileEvent, Source
+from figproof.model.records import FileAction, FileEvent, Source
 
 MAX_RECORDED_VALUES = 200_000  # per recorded array; keeps the child→parent message small
 CELL_RE = re.compile(r"^(?P<path>.*)#cell=(?P<cell>\d+)$")
@@ -97,6 +97,7 @@ class Recorder:
     script: str  # repo-relative
     events_path: Path | None = None
     protect: tuple[Path, ...] = ()  # the user's own repo: never written, even when it sits in the temp folder
+    temp: Path | None = None  # the script's own temp folder (TMPDIR): what is there, the script wrote in this run
     figures: list[Any] = field(default_factory=list)
     figure_sources: dict[int, Source | None] = field(default_factory=dict)
     outputs: dict[int, list[str]] = field(default_factory=dict)
@@ -113,13 +114,17 @@ class Recorder:
     cell_closes: bool = True  # the inline display closes figures on show and at the end of this cell
     close_all: Any = None  # closes every pyplot figure (set by the matplotlib hooks)
     _skip_dirs: tuple[str, ...] = ()
+    _quiet: tuple[str, ...] = ()  # folders whose reads are the libraries' (or the script's own scratch) business
     _file_cache: dict[str, str | None] = field(default_factory=dict)
+    _probed: set[tuple[str, str]] = field(default_factory=set)
     _busy: bool = False
 
     def __post_init__(self) -> None:
         here = str(Path(__file__).resolve().parents[1])
         paths = {sysconfig.get_paths().get(k, "") for k in ("purelib", "platlib", "stdlib")}
         self._skip_dirs = tuple(p for p in (here, *paths) if p)
+        own = [self.temp, *_matplotlib_folders()]
+        self._quiet = (*_SYSTEM, *(os.path.realpath(f).rstrip(os.sep) + os.sep for f in own if f is not None))
 
     # ---- locations -------------------------------------------------------
 
@@ -177,10 +182,37 @@ class Recorder:
         return text
 
     def scratch(self, resolved: Path) -> bool:
-        """A path outside the repo where writing is harmless: temp and system folders, but not the user's repo."""
+        """A path outside the repo that is not the script's input: the script's own temp folder, matplotlib's
+        configuration and cache folders, the Python installation and system folders; never the user's repo, nor
+        the rest of the temp folder (another program's files, or the run's folder beside the copy)."""
         if any(resolved == p or p in resolved.parents for p in self.protect):
             return False
-        return _is_temp(resolved)
+        return str(resolved).startswith(self._quiet)
+
+    def link_out(self, text: str) -> tuple[str, str] | None:
+        """(the link's repo path, what it holds) when ``text`` lies in the repo but a symbolic link on the way
+        leads out of it; None otherwise."""
+        root = str(self.sandbox)
+        here = os.path.abspath(text)
+        if not here.startswith(root + os.sep):
+            return None
+        at = root
+        for part in Path(here[len(root) + 1:]).parts:
+            at = os.path.join(at, part)
+            if os.path.islink(at):
+                real = os.path.realpath(at)
+                if real != root and not real.startswith(root + os.sep):
+                    return Path(at).relative_to(root).as_posix(), os.readlink(at)
+        return None
+
+    def outside(self, shown: str, exists: bool, src: Source, action: FileAction = "read",
+                operation: str = "") -> FileEvent:
+        """The event of a read (or existence check) outside the repo: a link leading out is named as such."""
+        found = None if shown.startswith("~") or "://" in shown else self.link_out(shown)
+        link, target = found if found is not None else ("", "")
+        home = shown.startswith("~") or (not link and "://" not in shown and _in_home(shown))
+        return FileEvent(action=action, path=link or shown, inside_repo=False, exists=exists, source=src,
+                         operation=operation, link=target, home=home)
 
     # ---- events ----------------------------------------------------------
 
@@ -218,13 +250,21 @@ def _record_read(rec: Recorder, resolved: Path, shown: str, inside: bool, src: S
         digest = file_sha256(resolved, _REAL_OPEN)
     finally:
         rec._busy = False
-    rec.event(FileEvent(action="read", path=shown, inside_repo=inside, sha256=digest, source=src))
+    event = FileEvent(action="read", path=shown, inside_repo=True, source=src) if inside \
+        else rec.outside(shown, True, src)
+    rec.event(replace(event, sha256=digest))
+
+
+def _record_missing(rec: Recorder, shown: str, inside: bool, src: Source) -> None:
+    rec.event(FileEvent(action="missing", path=shown, inside_repo=True, exists=False, source=src) if inside
+              else rec.outside(shown, False, src, "missing"))
 
 
 def _system_prefixes() -> tuple[str, ...]:
-    import tempfile
+    import site
 
-    roots = {sys.prefix, sys.base_prefix, sys.exec_prefix, tempfile.gettempdir()}
+    # the Python installation, the user's own site-packages (packages read their data files from there)
+    roots = {sys.prefix, sys.base_prefix, sys.exec_prefix, site.getusersitepackages()}
     system = ("/dev/", "/proc/", "/sys/", "/etc/", "/usr/", "/lib/", "/lib64/", "/var/lib/")
     return (*tuple(sorted(r.rstrip(os.sep) + os.sep for r in roots if r)), *system)
 
@@ -232,9 +272,20 @@ def _system_prefixes() -> tuple[str, ...]:
 _SYSTEM = _system_prefixes()
 
 
-def _is_temp(path: Path) -> bool:
-    """Scratch and system locations: reads there are the libraries' business, writes are allowed."""
-    return str(path).startswith(_SYSTEM)
+def _in_home(text: str) -> bool:
+    try:
+        home = os.path.realpath(Path.home())
+    except (KeyError, RuntimeError):  # no home folder known for this user
+        return False
+    return os.path.realpath(text).startswith(home.rstrip(os.sep) + os.sep)
+
+
+def _matplotlib_folders() -> list[str]:
+    """matplotlib's configuration and cache folders (its font list lives there; figproof points them at a
+    folder of its own)."""
+    import matplotlib
+
+    return [matplotlib.get_configdir(), matplotlib.get_cachedir()]
 
 
 def _address(target: Any) -> str:
@@ -270,7 +321,7 @@ def install_io_hooks(rec: Recorder, *, network: bool) -> None:
             handle = _REAL_OPEN(file, mode, *args, **kwargs)
         except FileNotFoundError:
             if src is not None and not writing:
-                rec.event(FileEvent(action="missing", path=shown, inside_repo=inside, exists=False, source=src))
+                _record_missing(rec, shown, inside, src)
             raise
         if src is not None:
             if writing:
@@ -281,6 +332,7 @@ def install_io_hooks(rec: Recorder, *, network: bool) -> None:
 
     builtins.open = guarded_open
     io.open = guarded_open
+    install_probe_hooks(rec)
 
     def closed_input(prompt: Any = "") -> str:
         src, _ = rec.user_source(2)
@@ -290,17 +342,108 @@ def install_io_hooks(rec: Recorder, *, network: bool) -> None:
     builtins.input = closed_input
 
     if not network:
-        def refuse(*args: Any, **kwargs: Any) -> Any:
-            src, _ = rec.user_source(2)
-            target = _address(args[1] if len(args) > 1 else (args[0] if args else ""))
+        def refuse(address: Any) -> NetworkRefused:
+            src, _ = rec.user_source(3)
+            target = _address(address)
             rec.event(FileEvent(action="network", path=target[:200], inside_repo=False, exists=False,
                                 source=src))
-            raise NetworkRefused(f"figproof: network access is off during a check (tried {target})")
+            return NetworkRefused(f"figproof: network access is off during a check (tried to connect to "
+                                  f"{target})")
 
-        socket.socket.connect = refuse  # type: ignore[method-assign]
-        socket.socket.connect_ex = refuse  # type: ignore[method-assign]
-        socket.create_connection = refuse
-        socket.getaddrinfo = lambda *a, **k: refuse(None, a[:2] if len(a) > 1 and a[1] else a[0] if a else "")
+        def connect(sock: Any, address: Any, *args: Any) -> Any:
+            raise refuse(address)
+
+        def create_connection(address: Any, *args: Any, **kwargs: Any) -> Any:
+            raise refuse(address)
+
+        def getaddrinfo(host: Any, port: Any = None, *args: Any, **kwargs: Any) -> Any:
+            raise refuse((host, port) if port not in (None, "", 0) else host)
+
+        socket.socket.connect = connect  # type: ignore[method-assign]  # a plain function stands in for the method
+        socket.socket.connect_ex = connect  # type: ignore[method-assign]  # a plain function stands in for the method
+        socket.create_connection = create_connection
+        socket.getaddrinfo = getaddrinfo
+
+
+MAX_PROBES = 200  # existence checks recorded per run (a script may probe many optional files)
+
+
+def _probed(rec: Recorder, check: str, path: Any) -> None:
+    """Record an existence check of the user's code that found nothing (see :func:`install_probe_hooks`)."""
+    if rec._busy or len(rec._probed) >= MAX_PROBES:
+        return
+    if rec.repo_path(sys._getframe(2).f_code.co_filename) is None:
+        return  # a library's own check: only the script's checks can explain its failure
+    info = rec.classify(path)
+    if info is None or "://" in info[0]:
+        return
+    shown, inside = info
+    text = os.fsdecode(path)
+    if check != "glob.glob" and _lexists(text):
+        return  # there, but of the other kind (a folder for isfile): not a missing input
+    if not inside and rec.scratch(Path(os.path.expanduser(text)).resolve()):
+        return
+    src, _ = rec.user_source(2)
+    if src is None or (shown, str(src)) in rec._probed:
+        return
+    rec._probed.add((shown, str(src)))
+    rec.event(FileEvent(action="probe", path=shown, inside_repo=True, exists=False, source=src, operation=check)
+              if inside else rec.outside(shown, False, src, "probe", check))
+
+
+def _lexists(text: str) -> bool:
+    try:
+        os.lstat(text)
+    except (OSError, ValueError):
+        return False
+    return True
+
+
+def install_probe_hooks(rec: Recorder) -> None:
+    """Record the script's existence checks that find nothing (``os.path.exists``/``isfile``/``isdir``/
+    ``lexists``, ``Path.exists``/``is_file``/``is_dir``, ``glob.glob``): a script that checks for its input and
+    raises its own error is then still explained (the rules use a check only when the failure names its path)."""
+    import glob
+    import pathlib
+
+    def wrap_os(name: str) -> None:
+        real = getattr(os.path, name)
+
+        @functools.wraps(real)
+        def probe(path: Any) -> bool:
+            found = real(path)
+            if not found:
+                _probed(rec, f"os.path.{name}", path)
+            return bool(found)
+
+        setattr(os.path, name, probe)
+
+    def wrap_path(name: str) -> None:
+        real = getattr(pathlib.Path, name)
+
+        @functools.wraps(real)
+        def probe(self: Any, *args: Any, **kwargs: Any) -> bool:
+            found = real(self, *args, **kwargs)
+            if not found:
+                _probed(rec, f"Path.{name}", self)
+            return bool(found)
+
+        setattr(pathlib.Path, name, probe)
+
+    for name in ("exists", "isfile", "isdir", "lexists"):
+        wrap_os(name)
+    for name in ("exists", "is_file", "is_dir"):
+        wrap_path(name)
+    real_glob = glob.glob
+
+    @functools.wraps(real_glob)
+    def probe_glob(pathname: Any, *args: Any, **kwargs: Any) -> list[Any]:
+        found = real_glob(pathname, *args, **kwargs)
+        if not found and isinstance(pathname, (str, bytes, os.PathLike)):
+            _probed(rec, "glob.glob", os.path.join(os.fsdecode(kwargs.get("root_dir") or ""), os.fsdecode(pathname)))
+        return found
+
+    glob.glob = probe_glob
 
 
 # --------------------------------------------------------------------------
@@ -398,14 +541,15 @@ def _wrap_loader(rec: Recorder, module: Any, name: str) -> None:
 
 
 def _record_load(rec: Recorder, target: Any, info: tuple[str, bool]) -> None:
-    resolved = Path(os.fsdecode(target)).resolve()
+    # numpy's and pandas' readers expand a leading ~ (open() does not)
+    resolved = Path(os.path.expanduser(os.fsdecode(target))).resolve()
     if not info[1] and rec.scratch(resolved):
         return
     src, _ = rec.user_source(3)
     if src is None:
         return
     if not resolved.exists():
-        rec.event(FileEvent(action="missing", path=info[0], inside_repo=info[1], exists=False, source=src))
+        _record_missing(rec, info[0], info[1], src)
     elif resolved.is_file():
         _record_read(rec, resolved, info[0], info[1], src)
 

@@ -185,7 +185,9 @@ def run_user_code(spec: Spec, rec: Any) -> Any:
         code = exc.code
         if code in (None, 0):
             return None
-        return _error(rec, exc, kind="exit", type="SystemExit", message=f"exit status {code}")
+        # sys.exit("text") prints the text and exits with status 1: the text is what the script said went wrong
+        said = str(code).strip().splitlines()[0][:300] if not isinstance(code, int) and str(code).strip() else ""
+        return _error(rec, exc, kind="exit", type="SystemExit", message=said or f"exit status {code}")
     except MemoryError as exc:
         return _error(rec, exc, kind="memory", type="MemoryError", message=str(exc)[:300])
     except BaseException as exc:  # noqa: BLE001 - any failure of user code is reported, not raised
@@ -270,7 +272,8 @@ def _run(spec: Spec, base: Path) -> int:
     from figproof.child import capture
 
     rec = capture.Recorder(sandbox=Path(spec.sandbox).resolve(), script=spec.script,
-                           events_path=out / "events.jsonl", protect=tuple(Path(p) for p in spec.protect))
+                           events_path=out / "events.jsonl", protect=tuple(Path(p) for p in spec.protect),
+                           temp=base / "tmp")
     from figproof.child import audit
 
     audit.install(confinement, rec.event, lambda: rec.user_source(1)[0])

@@ -148,7 +148,8 @@ TextRole = Literal["title", "xlabel", "ylabel", "tick", "legend", "annotation", 
 PatchKind = Literal["legend", "legend-entry", "fill", "rectangle", "polygon", "other"]
 Projection = Literal["rectilinear", "polar", "3d", "other"]
 ErrorKind = Literal["exception", "timeout", "memory", "signal", "exit", "needs-input", "no-report"]
-FileAction = Literal["read", "write", "save", "network", "missing", "blocked-write", "subprocess"]
+# probe: an existence check (os.path.exists, Path.is_file, glob.glob, ...) that found nothing
+FileAction = Literal["read", "write", "save", "network", "missing", "blocked-write", "subprocess", "probe"]
 RunStatus = Literal["ok", "failed", "timeout", "memory", "skipped"]
 WorkingDir = Literal["root", "script"]
 
@@ -480,7 +481,10 @@ class FileEvent(Serialisable):
     sha256: str | None = None
     format: str | None = None
     source: Source | None = None
-    operation: str = ""  # blocked-write: what was refused ("remove", "rename", ...); subprocess: its command line
+    operation: str = ""  # blocked-write: what was refused ("remove", "rename", ...); subprocess: its command line;
+    # probe: the existence check (os.path.exists, glob.glob, ...)
+    link: str = ""  # a read through a symbolic link in the repo that leads out of it: what the link holds
+    home: bool = False  # outside the repo: the path lies in the user's home folder (or starts with ~)
 
 
 @model

@@ -17,6 +17,7 @@ from figproof.model.comparison import OutputComparison
 from figproof.model.context import RunContext, files_read, is_figure_output, is_repo_path
 from figproof.model.findings import Hit
 from figproof.model.records import FigureModel, FileEvent, ScriptRun, Source
+from figproof.rules._inputs import explained_probe, not_found
 from figproof.rules.base import Knob, Knobs, pct, rule
 
 _GOOD_PLOT = """
@@ -246,25 +247,29 @@ def input_missing(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator
     writers = _writers(context)
     seen: set[tuple[str, str]] = set()
     for ev in run.events:
-        if ev.action not in ("read", "missing") or not ev.inside_repo or not is_repo_path(ev.path):
+        if ev.action not in ("read", "missing", "probe") or not ev.inside_repo or not is_repo_path(ev.path):
+            continue
+        if ev.action == "probe" and not explained_probe(run, ev):
             continue
         later = [context.runs[i].path for i in writers.get(ev.path, ()) if i > here and i < len(context.runs)]
         later = [p for p in dict.fromkeys(later) if p != run.path]
-        missing = ev.action == "missing" or not ev.exists
+        missing = not_found(run, ev)
         if not missing and not later:
             continue
         mark = (ev.path, str(ev.source))
         if mark in seen:
             continue
         seen.add(mark)
+        read = _read_verb(ev)
         if missing and later:
-            yield Hit(message=f"{ev.path} is read{_where(ev.source)} before {later[0]}, which runs later, "
+            yield Hit(message=f"{ev.path} {read}{_where(ev.source)} before {later[0]}, which runs later, "
                               f"writes it, so it is not there yet",
                       source=ev.source, key=f"{ev.path}:order")
         elif missing:
             earlier = [context.runs[i].path for i in writers.get(ev.path, ()) if i < here]
             by = f" ({earlier[0]} writes it earlier in this run)" if earlier else ""
-            yield Hit(message=f"{ev.path} is read{_where(ev.source)} but is not in the repo{by}",
+            found = "no file in the repo matches it" if ev.operation == "glob.glob" else "is not in the repo"
+            yield Hit(message=f"{ev.path} {read}{_where(ev.source)} but {found}{by}",
                       source=ev.source, key=ev.path)
         else:
             yield Hit(message=f"{ev.path} is read{_where(ev.source)} before {later[0]}, which runs later, "
@@ -279,6 +284,29 @@ def input_missing(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator
 
 def _is_url(path: str) -> bool:
     return "://" in path
+
+
+def _read_verb(ev: FileEvent) -> str:
+    """'is read', or for an existence check the failure is about, what the script did."""
+    if ev.action != "probe":
+        return "is read"
+    return "is looked for" if ev.operation == "glob.glob" else "is checked for"
+
+
+def _outside_message(run: ScriptRun, ev: FileEvent, where: str) -> str:
+    """What a read outside the repo reached for: a URL, a symbolic link in the repo that leads out, a path in
+    the home folder, any other path (shown as the script wrote it: a leading ~ is kept)."""
+    read = _read_verb(ev)
+    if _is_url(ev.path):
+        return f"{ev.path} {read}{where} over the network"
+    gone = " (it does not exist here)" if not_found(run, ev) else ""
+    if ev.link:
+        gone = " (where it leads does not exist here)" if gone else ""
+        return (f"{ev.path}, {read.removeprefix('is ')}{where}, is a symbolic link in the repo that leads "
+                f"outside it, to {ev.link}{gone}")
+    kind = "the absolute path" if ev.path.startswith(("/", "\\")) or ev.path[1:3] == ":\\" else "the path"
+    home = " in the home folder," if ev.home else ""
+    return f"{kind} {ev.path} {read}{where},{home} outside the repo{gone}"
 
 
 @rule(
@@ -327,15 +355,10 @@ def input_outside_repo(run: ScriptRun, context: RunContext, knobs: Knobs) -> Ite
             yield Hit(message=f"{run.path} tries to connect to{target or ' the network'}{where}, "
                               f"and network access is off during a check",
                       source=ev.source, key=f"network:{ev.path}")
-        elif ev.action in ("read", "missing") and (not ev.inside_repo or not is_repo_path(ev.path)):
-            if _is_url(ev.path):
-                what = f"{ev.path} is read{where} over the network"
-            else:
-                kind = "the absolute path" if ev.path.startswith(("/", "\\")) or ev.path[1:3] == ":\\" \
-                    else "the path"
-                gone = " (it does not exist here)" if ev.action == "missing" or not ev.exists else ""
-                what = f"{kind} {ev.path} is read{where}, outside the repo{gone}"
-            yield Hit(message=what, source=ev.source, key=f"read:{ev.path}")
+        elif ev.action in ("read", "missing", "probe") and (not ev.inside_repo or not is_repo_path(ev.path)):
+            if ev.action == "probe" and not explained_probe(run, ev):
+                continue
+            yield Hit(message=_outside_message(run, ev, where), source=ev.source, key=f"read:{ev.path}")
         elif (ev.action == "read" and ev.exists and context.inventory.is_git and tracked
               and ev.path not in tracked and ev.path not in own_writes
               and not any(i <= here for i in writers.get(ev.path, ()))):

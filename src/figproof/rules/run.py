@@ -8,6 +8,7 @@ from collections.abc import Iterator
 from figproof.model.context import RunContext
 from figproof.model.findings import Hit
 from figproof.model.records import FileEvent, ScriptRun, Source
+from figproof.rules._inputs import names_path, not_found
 from figproof.rules.base import Knobs, rule
 
 _KIND_TEXT = {
@@ -21,16 +22,17 @@ _KIND_TEXT = {
 
 
 def _missing_input(run: ScriptRun) -> FileEvent | None:
-    """The missing file the script's error is about: read at the failing line, or named in the message."""
+    """The missing file the script's error is about: read at the failing line, or named in the message (an
+    existence check that found nothing counts only when the message names its path)."""
     err = run.error
-    if err is None or err.kind != "exception":
+    if err is None or err.kind not in ("exception", "exit"):
         return None
-    missing = [ev for ev in run.events if ev.action == "missing" or (ev.action == "read" and not ev.exists)]
+    missing = [ev for ev in run.events if not_found(run, ev)]
     for ev in missing:
         if err.source is not None and ev.source == err.source:
             return ev
     for ev in missing:
-        if ev.path and (ev.path in err.message or ev.path.rsplit("/", 1)[-1] in err.message):
+        if names_path(err.message, ev.path):
             return ev
     return None
 
@@ -105,15 +107,19 @@ def script_fails(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator[
     if _refused_write(run):
         return  # the refusal is the cause, and write-outside-copy reports it
     where, source = _location(run)
+    at = f" at line {err.source.line}" if err.source is not None and err.source.path == run.path \
+        and err.source.line is not None and err.source.cell is None else where
     # one finding per cause: a missing input file is input-missing's (or input-outside-repo's) error, and
     # the failure it causes is a note pointing at it; a missing package is one finding for all its scripts
     ev = _missing_input(run)
     if ev is not None:
         rule_id = "input-missing" if ev.inside_repo else "input-outside-repo"
-        at = f" at line {err.source.line}" if err.source is not None and err.source.path == run.path \
-            and err.source.line is not None and err.source.cell is None else where
         yield Hit(message=f"{run.path} stops{at} because {ev.path} is missing (reported by {rule_id})",
                   source=source, severity="note", key=f"{err.kind}:missing-input")
+        return
+    if _refused_network(run):
+        yield Hit(message=f"{run.path} stops{at} because network access is off during a check (reported by "
+                          f"input-outside-repo)", source=source, severity="note", key=f"{err.kind}:network")
         return
     package = _missing_package(run)
     if package is not None:
@@ -127,6 +133,18 @@ def script_fails(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator[
         if err.message:
             what = f"{what} ({err.message})"
     yield Hit(message=f"{run.path} {what}{where}", source=source, key=err.kind)
+
+
+NETWORK_OFF = "network access is off during a check"  # in every refused connection's message (child/capture.py)
+
+
+def _refused_network(run: ScriptRun) -> bool:
+    """The failure is the refused connection (raised as is, or wrapped by the library that tried it)."""
+    err = run.error
+    tried = [ev for ev in run.events if ev.action == "network"]
+    return (err is not None and bool(tried)
+            and (NETWORK_OFF in err.message or any(ev.source is not None and ev.source == err.source
+                                                  for ev in tried)))
 
 
 def _refused_write(run: ScriptRun) -> bool:

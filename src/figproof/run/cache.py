@@ -208,15 +208,15 @@ def dependencies(run: ScriptRun, root: Path, network_allowed: bool) -> tuple[dic
             continue
         if ev.action == "network" and network_allowed:
             return None
-        if ev.action not in ("read", "missing") or ev.path in written:
-            continue
+        if ev.action not in ("read", "missing", "probe") or ev.path in written:
+            continue  # an existence check that found nothing: the result changes when the file appears
         if ev.inside_repo:
             if not _safe_relative(ev.path):
                 return None
             folders.add(PurePosixPath(ev.path).parent.as_posix())
         elif not os.path.isabs(ev.path):
             return None  # relative to a sandbox that no longer exists
-        if ev.action == "missing" or not ev.exists:
+        if ev.action in ("missing", "probe") or not ev.exists:
             files.setdefault(ev.path, None)
         elif ev.sha256 is None:
             return None
