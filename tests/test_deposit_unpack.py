@@ -81,6 +81,20 @@ def test_a_tar_gz_with_an_inside_link_and_a_hard_link_unpacks(tmp_path) -> None:
     assert (into / "a/copy.csv").read_bytes() == b"1,2\n" and not (into / "a/copy.csv").is_symlink()
 
 
+@pytest.mark.parametrize("target", ["a/missing.csv", "a"])
+def test_a_hard_link_to_no_file_of_the_archive_is_refused(tmp_path, target) -> None:
+    # a tar hard link (LNKTYPE) names another member whose bytes it shares (tarfile docs: TarInfo.islnk);
+    # naming a member that is not there, or a folder, leaves nothing to copy
+    archive = _tar(tmp_path / "d.tar.gz", [("a/data.csv", b"1,2\n"), _link("a/copy.csv", target, tarfile.LNKTYPE)])
+    into = tmp_path / "out"
+    into.mkdir()
+    with pytest.raises(DepositError) as info:
+        unpack(archive, into)
+    message = str(info.value)
+    assert "\n" not in message and "d.tar.gz" in message and "'a/copy.csv'" in message
+    assert "not a file of the archive" in message and not (into / "a/copy.csv").exists()
+
+
 @pytest.mark.parametrize(("name", "words"), [
     ("../escape.txt", "climbs out"),
     ("study/../../escape.txt", "climbs out"),

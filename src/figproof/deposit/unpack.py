@@ -24,9 +24,10 @@ import stat
 import tarfile
 import zipfile
 import zlib
-from collections.abc import Iterator
+from collections.abc import Callable, Iterable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
+from functools import partial
 from pathlib import Path
 from typing import IO, Literal
 
@@ -193,59 +194,55 @@ def _check(archive: str, member: Member) -> tuple[str, str]:
     return name, target
 
 
+Opener = Callable[[], IO[bytes] | None]  # a member's content, opened when it is written (None: nothing to write)
+
+
+def _unpack_members(archive: str, root: Path, limits: Limits, members: Iterable[tuple[Member, Opener]]) -> None:
+    """Check and write each member of either format; links last, so no file member is written through one."""
+    writer = _Writer(archive, root, limits)
+    links: list[tuple[str, str]] = []
+    for member, open_member in members:
+        writer.count(member)
+        name, target = _check(archive, member)
+        if not name:
+            continue
+        if member.kind == "dir":
+            writer.folder(name)
+        elif member.kind == "symlink":
+            links.append((name, target))
+        elif (source := open_member()) is not None:
+            with source:
+                writer.file(name, source)
+    for name, target in links:
+        writer.symlink(name, target)
+
+
 def _unpack_zip(path: Path, root: Path, limits: Limits) -> None:
-    writer = _Writer(path.name, root, limits)
     with zipfile.ZipFile(path) as zf:
-        links: list[tuple[str, str]] = []
-        for member, info in _zip_members(zf):
-            writer.count(member)
-            name, target = _check(path.name, member)
-            if not name:
-                continue
-            if member.kind == "dir":
-                writer.folder(name)
-            elif member.kind == "symlink":
-                links.append((name, target))
-            else:
-                with zf.open(info) as fh:
-                    writer.file(name, fh)
-        for name, target in links:  # links last, so no file member is written through one
-            writer.symlink(name, target)
+        _unpack_members(path.name, root, limits,
+                        ((member, partial(zf.open, info)) for member, info in _zip_members(zf)))
 
 
 def _unpack_tar(path: Path, root: Path, limits: Limits) -> None:
-    writer = _Writer(path.name, root, limits)
-    links: list[tuple[str, str]] = []
     with tarfile.open(path, mode="r:*") as tf:
         # iterate rather than getmembers(): a bomb of members is stopped at the cap, not read whole into memory
-        for info in tf:
-            member = Member(name=info.name, kind=_tar_kind(info), size=info.size, target=info.linkname)
-            writer.count(member)
-            name, target = _check(path.name, member)
-            if not name:
-                continue
-            if member.kind == "dir":
-                writer.folder(name)
-            elif member.kind == "symlink":
-                links.append((name, target))
-            elif member.kind == "hardlink":
-                try:
-                    source = tf.extractfile(tf.getmember(info.linkname)) if target else None
-                except KeyError:
-                    source = None
-                if source is None:
-                    raise DepositError(f"{path.name}: member {info.name!r} links to {info.linkname!r}, which is "
-                                       f"not a file of the archive; refused")
-                with source:
-                    writer.file(name, source)
-            else:
-                source = tf.extractfile(info)
-                if source is None:
-                    continue
-                with source:
-                    writer.file(name, source)
-    for name, target in links:
-        writer.symlink(name, target)
+        _unpack_members(path.name, root, limits,
+                        ((Member(name=info.name, kind=_tar_kind(info), size=info.size, target=info.linkname),
+                          partial(_tar_content, path.name, tf, info)) for info in tf))
+
+
+def _tar_content(archive: str, tf: tarfile.TarFile, info: tarfile.TarInfo) -> IO[bytes] | None:
+    """A tar member's bytes; a hard link's are those of the file it names (DepositError when it names none)."""
+    if not info.islnk():
+        return tf.extractfile(info)
+    try:
+        source = tf.extractfile(tf.getmember(info.linkname))
+    except KeyError:
+        source = None
+    if source is None:
+        raise DepositError(f"{archive}: member {info.name!r} links to {info.linkname!r}, which is "
+                           f"not a file of the archive; refused")
+    return source
 
 
 def unpack(archive: Path, into: Path, limits: Limits | None = None) -> Path:
