@@ -427,3 +427,31 @@ def test_end_to_end_with_a_real_child(tmp_path: Path) -> None:
     assert not hit(runner, TASK, options) and len(calls) == 3
     assert hit(runner, TASK, options) and len(calls) == 3
     assert not (root / "figures" / "yield.png").exists()  # the working tree is still untouched
+
+
+def test_recorded_inputs_and_uses_read_every_readable_key_and_skip_the_rest(tmp_path: Path) -> None:
+    from figproof.run.cache import recorded_dependencies, recorded_uses
+
+    repo = tmp_path / "repo"
+    repo.mkdir()
+    (repo / "a.py").write_text("print('a')\n")
+    (repo / "b.py").write_text("print('b, edited since')\n")
+    runs = tmp_path / "cache" / "runs"
+    keys = {
+        "a": {"script": "a.py", "script_sha256": hashlib.sha256(b"print('a')\n").hexdigest(),
+              "files": [{"path": "data/x.csv"}, {"path": "helpers.py"}], "outputs": ["fig/a.png"]},
+        "b": {"script": "b.py", "script_sha256": hashlib.sha256(b"print('b')\n").hexdigest(),  # the old code
+              "files": [{"path": "data/y.csv"}], "outputs": ["fig/b.png"]},
+        "c": {"script": "c.py", "files": [{"path": "data/z.csv"}]},  # written before outputs were recorded
+    }
+    for name, key in keys.items():
+        (runs / name).mkdir(parents=True)
+        (runs / name / "key.json").write_text(json.dumps(key))
+    for name, text in (("broken", "{"), ("listed", "[1, 2]"), ("nameless", '{"files": []}')):
+        (runs / name).mkdir()
+        (runs / name / "key.json").write_text(text)
+    assert recorded_dependencies(tmp_path / "cache") == {"a.py": {"data/x.csv", "helpers.py"}, "b.py": {"data/y.csv"},
+                                                         "c.py": {"data/z.csv"}}
+    # only a.py is unchanged and recorded what it wrote
+    assert recorded_uses(tmp_path / "cache", repo) == {"a.py": frozenset({"fig/a.png", "data/x.csv", "helpers.py"})}
+    assert recorded_dependencies(tmp_path / "nowhere") == {} and recorded_uses(tmp_path / "nowhere", repo) == {}

@@ -58,7 +58,7 @@ import sys
 import tempfile
 import threading
 import time
-from collections.abc import Callable, Iterable, Mapping
+from collections.abc import Callable, Iterable, Iterator, Mapping
 from dataclasses import replace
 from importlib import metadata
 from pathlib import Path, PurePosixPath
@@ -459,20 +459,35 @@ class CachingRunner:
             return f"could not be written ({getattr(exc, 'strerror', None) or type(exc).__name__})"
 
 
+def _recorded_keys(cache_dir: Path) -> Iterator[dict[str, Any]]:
+    """The key of every cache entry, in the entries' order; entries whose key cannot be read are skipped."""
+    runs = cache_dir / RUNS
+    if not runs.is_dir():
+        return
+    for key_file in sorted(runs.glob(f"*/{KEY_FILE}")):
+        try:
+            key = json.loads(key_file.read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            continue
+        if isinstance(key, dict):
+            yield key
+
+
+def _key_files(key: Mapping[str, Any]) -> list[str]:
+    """The repo files a cache key records as the script's inputs (read, or imported repo modules)."""
+    return [str(f["path"]) for f in key.get("files", ())]
+
+
 def recorded_dependencies(cache_dir: Path) -> dict[str, set[str]]:
     """Repo files each cached script depended on when it last ran (inputs read, repo modules imported).
 
     Used to pick the scripts a changed data file affects; unreadable entries are skipped.
     """
     out: dict[str, set[str]] = {}
-    runs = cache_dir / RUNS
-    if not runs.is_dir():
-        return out
-    for key_file in sorted(runs.glob(f"*/{KEY_FILE}")):
+    for key in _recorded_keys(cache_dir):
         try:
-            key = json.loads(key_file.read_text(encoding="utf-8"))
-            out.setdefault(str(key["script"]), set()).update(str(f["path"]) for f in key.get("files", ()))
-        except (OSError, ValueError, KeyError, TypeError):
+            out.setdefault(str(key["script"]), set()).update(_key_files(key))
+        except (KeyError, TypeError):
             continue
     return out
 
@@ -484,16 +499,12 @@ def recorded_uses(cache_dir: Path, root: Path) -> dict[str, frozenset[str]]:
     that changed since are left out (what the script writes now is not known).
     """
     out: dict[str, frozenset[str]] = {}
-    runs = cache_dir / RUNS
-    if not runs.is_dir():
-        return out
-    for key_file in sorted(runs.glob(f"*/{KEY_FILE}")):
+    for key in _recorded_keys(cache_dir):
         try:
-            key = json.loads(key_file.read_text(encoding="utf-8"))
             script, outputs = str(key["script"]), key["outputs"]
             if not _safe_relative(script) or file_sha256(root / script) != key["script_sha256"]:
                 continue
-            out[script] = frozenset([*map(str, outputs), *(str(f["path"]) for f in key.get("files", ()))])
+            out[script] = frozenset([*map(str, outputs), *_key_files(key)])
         except (OSError, ValueError, KeyError, TypeError):
             continue
     return out
