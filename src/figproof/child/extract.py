@@ -337,7 +337,7 @@ class _AxesExtractor:
                     facecolor=_rgba(fc[0]) if len(fc) else (0.0, 0.0, 0.0, 0.0),
                     edgecolor=_rgba(coll.get_edgecolor()[0]) if len(coll.get_edgecolor()) else (0.0, 0.0, 0.0, 0.0),
                     zorder=float(coll.get_zorder()), label=_label(coll), source=_src(coll),
-                    draw_order=self.order.get(id(coll))))
+                    draw_order=self.order.get(id(coll)), hatch=coll.get_hatch() or ""))
 
     def scatter(self, coll: PathCollection) -> None:
         offsets: np.ndarray = np.ma.filled(np.ma.asarray(coll.get_offsets(), float), np.nan).reshape(-1, 2)
@@ -507,7 +507,7 @@ def _barset(rects: list[Rectangle], vertical: bool, origin: str, label: str, ren
                   bottoms=bottoms, heights=heights, facecolors=_rgba_array([r.get_facecolor() for r in rects]),
                   edgecolors=_edges(rects), display_boxes=boxes, origin=origin,
                   label=label if not label.startswith("_") else "", zorder=float(rects[0].get_zorder()),
-                  source=_src(rects[0]), draw_order=draw_order)
+                  source=_src(rects[0]), draw_order=draw_order, hatch=rects[0].get_hatch() or "")
 
 
 def _edges(rects: list[Rectangle]) -> np.ndarray:
@@ -522,7 +522,7 @@ def _edges(rects: list[Rectangle]) -> np.ndarray:
 def _patch(p: Any, kind: PatchKind, renderer: Any, draw_order: int | None = None) -> Patch:
     return Patch(kind=kind, display_box=_box(p.get_window_extent(renderer)), facecolor=_rgba(p.get_facecolor()),
                  edgecolor=_rgba(p.get_edgecolor()), zorder=float(p.get_zorder()), label=_label(p), source=_src(p),
-                 draw_order=draw_order)
+                 draw_order=draw_order, linestyle=str(p.get_linestyle()), hatch=p.get_hatch() or "")
 
 
 def _line(ax: MplAxes, ln: Line2D, role: LineRole) -> Line:

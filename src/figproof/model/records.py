@@ -261,6 +261,7 @@ class BarSet(Serialisable):
     origin: str = "bar"
     label: str = ""
     zorder: float = 1.0
+    hatch: str = ""
     source: Source | None = None
     draw_order: int | None = None  # index among the axes' children: matplotlib draws equal z-orders in this order
 
@@ -357,6 +358,8 @@ class Patch(Serialisable):
     label: str = ""
     source: Source | None = None
     draw_order: int | None = None  # index among the axes' children: matplotlib draws equal z-orders in this order
+    linestyle: str = "-"  # of the outline
+    hatch: str = ""
 
 
 @model

@@ -74,6 +74,17 @@ class Series:
     label: str
     what: str  # line | points | bars | area | category
     source: Source | None
+    style: tuple[str, str, str, float] = ("", "", "", 0.0)  # line style, marker, hatch, line width
+
+
+def told_apart_by_style(a: Series, b: Series) -> bool:
+    """Line style, marker, hatch or a line twice as wide as the other already names the pair (not colour alone)."""
+    if a.what != b.what or not (a.style[0] or a.style[1] or a.style[2]):
+        return False
+    if a.style[:3] != b.style[:3]:
+        return True
+    wa, wb = a.style[3], b.style[3]
+    return wa > 0.0 and wb > 0.0 and max(wa, wb) >= 2.0 * min(wa, wb)
 
 
 def distinct_rows(colors: np.ndarray) -> np.ndarray:
@@ -171,6 +182,7 @@ class _Artist:
     source: Source | None
     span: tuple[float, float] = (0.0, 0.0)  # bars: the range of positions they occupy
     decorative: bool = False
+    style: tuple[str, str, str, float] = ("", "", "", 0.0)
 
 
 def _spans_axes(box: tuple[float, float, float, float], ax: Axes) -> bool:
@@ -179,6 +191,13 @@ def _spans_axes(box: tuple[float, float, float, float], ax: Axes) -> bool:
     w, h = x1 - x0, y1 - y0
     bw, bh = box[2] - box[0], box[3] - box[1]
     return (w > 0 and bw >= 0.98 * w and bh < 0.98 * h) or (h > 0 and bh >= 0.98 * h and bw < 0.98 * w)
+
+
+_DASHES = {"solid": "-", "dashed": "--", "dashdot": "-.", "dotted": ":"}
+
+
+def _dash(linestyle: str) -> str:
+    return _DASHES.get(linestyle, linestyle)
 
 
 def _artists(ax: Axes, palette_max_colors: float, max_colors: float) -> list[_Artist]:
@@ -196,16 +215,19 @@ def _artists(ax: Axes, palette_max_colors: float, max_colors: float) -> list[_Ar
             add(visible_colors(ps.facecolors, ps.edgecolors), public_label(ps.label), "points", ps.source)
     for ln in ax.lines:
         if ln.role == "data" and ln.linestyle not in ("", " ", "None", "none"):
-            add(np.asarray([ln.color], float), public_label(ln.label), "line", ln.source)
+            add(np.asarray([ln.color], float), public_label(ln.label), "line", ln.source,
+                style=(_dash(ln.linestyle), ln.marker, "", float(ln.linewidth)))
     for bs in ax.bars:
         if bs.positions.size:
             lo = float(np.nanmin(bs.positions - bs.widths / 2)) if bs.widths.size else float(np.nanmin(bs.positions))
             hi = float(np.nanmax(bs.positions + bs.widths / 2)) if bs.widths.size else float(np.nanmax(bs.positions))
-            add(visible_colors(bs.facecolors, bs.edgecolors), public_label(bs.label), "bars", bs.source, span=(lo, hi))
+            add(visible_colors(bs.facecolors, bs.edgecolors), public_label(bs.label), "bars", bs.source, span=(lo, hi),
+                style=("-", "", bs.hatch, 0.0))
     for patch in ax.patches:
         if patch.kind in ("fill", "polygon"):
             add(visible_colors(np.asarray([patch.facecolor]), np.asarray([patch.edgecolor])),
-                public_label(patch.label), "area", patch.source, decorative=_spans_axes(patch.display_box, ax))
+                public_label(patch.label), "area", patch.source, decorative=_spans_axes(patch.display_box, ax),
+                style=(_dash(patch.linestyle), "", patch.hatch, 0.0))
     for cm in ax.colormaps:
         if cm.kind != "scatter" and cm.kind != "colorbar":
             add(palette_colors(cm, palette_max_colors), public_label(cm.name), "category", cm.source)
@@ -226,7 +248,7 @@ def _keyed_by_colour(ax: Axes, artists: list[_Artist]) -> list[_Artist]:
             if not keep and art.label and art.label in labels:
                 keep = list(art.colors)
             if keep:
-                out.append(_Artist(np.asarray(keep), art.label, art.what, art.source, art.span))
+                out.append(_Artist(np.asarray(keep), art.label, art.what, art.source, art.span, style=art.style))
             continue
         out.append(art)
     if ax.legend_labels:
@@ -266,7 +288,8 @@ def axes_series(ax: Axes, *, palette_max_colors: float, max_colors: float) -> li
     for art in artists:
         for k, row in enumerate(art.colors):
             name = art.label if art.colors.shape[0] == 1 else (f"{art.label} {k + 1}" if art.label else "")
-            found.append(Series(tuple(float(v) for v in row), name, art.what, art.source))  # type: ignore[arg-type]
+            found.append(Series(tuple(float(v) for v in row), name, art.what, art.source,  # type: ignore[arg-type]
+                                art.style))
     # several artists of one kind whose colours step along a ramp (lines drawn from a sequential map)
     # are a map too
     for what in {s.what for s in found}:
@@ -317,6 +340,7 @@ def axes_pairs(figure: FigureModel, knobs: Knobs) -> list[AxesPairs]:
             for i in range(len(series))
             for j in range(i + 1, len(series))
             if base[i] != base[j] and not (series[i].label and series[i].label == series[j].label)
+            and not told_apart_by_style(series[i], series[j])
         ]
         if pairs:
             out.append(AxesPairs(ax.index, series, rgb, [cs.to_hex(c) for c in rgb], pairs))

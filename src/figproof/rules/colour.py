@@ -199,8 +199,9 @@ _SERIES_KNOBS = (
         tell a red series from a green one, and a legend that relies on that difference leaves them
         guessing which curve is which. figproof takes the colours a reader must tell apart in each axes:
         series and hue levels named by a legend, or told apart by colour alone (not bars that stand
-        under their own tick labels, slices labelled directly, or colours that step along a lightness
-        ramp, which encode an ordered value), blends them over the axes background, simulates protan,
+        under their own tick labels, slices labelled directly, colours that step along a lightness
+        ramp, which encode an ordered value, or pairs that also differ in line style, marker, hatch or a
+        line at least twice as wide), blends them over the axes background, simulates protan,
         deutan and tritan vision with the Machado et al. (2009) model and measures every pair's
         perceptual distance ΔE' in CAM02-UCS. Pairs closer than the limit for normal, protan or deutan
         vision are errors; for tritan vision, or when a pair loses its hue difference and keeps too
