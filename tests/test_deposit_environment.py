@@ -161,3 +161,25 @@ def test_one_cause_per_missing_package_names_every_script_it_explains(tmp_path) 
 
 def test_a_deposit_folder_without_requirement_files_asks_nothing(tmp_path: Path) -> None:
     assert requirement_asks(tmp_path) == ((), ())
+
+
+def test_a_notebook_with_a_python2_cell_is_python2_only(tmp_path) -> None:
+    import json
+
+    def cell(source: str) -> dict:
+        return {"cell_type": "code", "metadata": {}, "execution_count": None, "outputs": [], "source": source}
+
+    # valid Python 2.7 that Python 3 refuses ("What's New In Python 3.0": the print statement); IPython's own
+    # lines (%matplotlib) are not Python of either version and are blanked as when the notebook runs
+    nb = {"nbformat": 4, "nbformat_minor": 5, "metadata": {}, "cells": [
+        {"cell_type": "markdown", "metadata": {}, "source": "# Doses"},
+        cell("%matplotlib inline\nimport matplotlib.pyplot as plt\nimport seaborn_absent_x"),
+        cell("doses = [1, 2, 3]\nprint 'plotting', len(doses)\nplt.plot(doses)")]}
+    (tmp_path / "doses.ipynb").write_text(json.dumps(nb))
+    (tmp_path / "fine.ipynb").write_text(json.dumps({**nb, "cells": [cell("%matplotlib inline\nprint('ok')")]}))
+    found = survey(tmp_path, ["doses.ipynb", "fine.ipynb"])
+    assert [(p.path, p.cell, p.line, p.syntax) for p in found.python2] == [("doses.ipynb", 3, 2, "print statement")]
+    assert "seaborn_absent_x" in {i.module for i in found.imports}
+    run = ScriptRun(path="doses.ipynb", status="failed",
+                    error=ScriptError(kind="exception", type="SyntaxError", message="invalid syntax (line 2)"))
+    assert failure_cause(run, found) == ("python2-only", "python2")

@@ -196,12 +196,15 @@ def run_user_code(spec: Spec, rec: Any) -> Any:
             kind = "needs-input"
         message = str(exc).strip().splitlines()[0][:300] if str(exc).strip() else ""
         source = _user_frame(exc.__traceback__, rec)
+        text = ""
         if isinstance(exc, SyntaxError) and exc.filename:  # the failing line is in the exception, not a frame
             source = rec.source_at(exc.filename, exc.lineno) or source
             message = f"{exc.msg} (line {exc.lineno})" if exc.lineno else exc.msg
+            text = (exc.text or "").rstrip("\r\n")[:300]
         if isinstance(exc, NetworkRefused):
             message = message.removeprefix("figproof: ")
-        return _error(rec, exc, kind=kind, type=type(exc).__name__, message=message, source=source)
+        return _error(rec, exc, kind=kind, type=type(exc).__name__, message=message, source=source,
+                      text=rec.shown_text(text))
     return None
 
 

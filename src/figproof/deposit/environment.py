@@ -27,97 +27,19 @@ import sys
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path, PurePosixPath
-from typing import Literal
 
 from figproof.discover.imports import code_of
 from figproof.model.records import ScriptRun
-
-# Import names whose distribution has another name, for packages that are not installed (installed ones are
-# looked up in importlib.metadata).  From memory of each project's install instructions.
-IMPORT_TO_DIST = {
-    "sklearn": "scikit-learn", "skimage": "scikit-image", "cv2": "opencv-python", "PIL": "Pillow",
-    "yaml": "PyYAML", "bs4": "beautifulsoup4", "Bio": "biopython", "dateutil": "python-dateutil",
-    "mpl_toolkits": "matplotlib", "docx": "python-docx", "pptx": "python-pptx", "Crypto": "pycryptodome",
-    "serial": "pyserial", "igraph": "python-igraph", "osgeo": "GDAL", "umap": "umap-learn", "jwt": "PyJWT",
-    "attr": "attrs", "tables": "tables", "netCDF4": "netCDF4", "mne": "mne", "nibabel": "nibabel",
-    "statsmodels": "statsmodels", "Levenshtein": "python-Levenshtein", "magic": "python-magic",
-    "dotenv": "python-dotenv", "fitz": "PyMuPDF", "google.protobuf": "protobuf", "sounddevice": "sounddevice",
-    "wx": "wxPython", "gi": "PyGObject", "OpenGL": "PyOpenGL", "pymc3": "pymc3", "cartopy": "Cartopy",
-    "shapely": "shapely", "odf": "odfpy", "mpl_scatter_density": "mpl-scatter-density", "xarray": "xarray",
-}
-# Readers pandas needs for a data format (pandas' "Optional dependencies" table of its installation guide).
-READERS: dict[str, tuple[str, str]] = {  # suffix -> (import name, distribution)
-    ".xlsx": ("openpyxl", "openpyxl"), ".xlsm": ("openpyxl", "openpyxl"), ".xls": ("xlrd", "xlrd"),
-    ".ods": ("odf", "odfpy"), ".parquet": ("pyarrow", "pyarrow"), ".feather": ("pyarrow", "pyarrow"),
-    ".h5": ("tables", "tables"), ".hdf5": ("tables", "tables"), ".hdf": ("tables", "tables"),
-}
-# Python 2 syntax that Python 3 refuses, looked for on the line compile() stops at.
-# From memory of Python 3.0's "What's New" (print, except, backticks, <>, exec, octal and ur literals).
-_PY2_SYNTAX: tuple[tuple[str, re.Pattern[str]], ...] = (
-    ("print statement", re.compile(r"^\s*print(\s+[^\s(=.,)]|\s*$|\s*>>)")),
-    ("except E, e", re.compile(r"^\s*except\s+[\w.]+\s*,\s*\w+\s*:")),
-    ("backtick repr", re.compile(r"`[^`\n]+`")),
-    ("<> operator", re.compile(r"<>")),
-    ("exec statement", re.compile(r"^\s*exec\s+[\"'\w]")),
-    ("raise E, msg", re.compile(r"^\s*raise\s+[\w.]+\s*,")),
-    ("octal literal 0NNN", re.compile(r"(?<![\w.])0[0-7]+\b")),
-    ("ur'' literal", re.compile(r"(?<![\w])ur[\"']", re.I)),
+from figproof.notebook import NotebookError, code_cells, python_source
+from figproof.rules.environment import (
+    API_CHANGES,
+    IMPORT_TO_DIST,
+    READERS,
+    CauseKind,
+    python2_line,
+    verdict,
 )
-# pandas < 3 says "Missing optional dependency 'openpyxl'", pandas 3 "`Import openpyxl` failed"
-_MISSING_OPTIONAL = re.compile(r"Missing optional dependency '([\w.\-]+)'|`Import ([\w.\-]+)` failed")
-_NO_MODULE = re.compile(r"No module named '([\w.]+)'")
-_ABSOLUTE = re.compile(r"'((?:/(?:Users|home|Volumes|mnt|media)/|[A-Za-z]:[\\/]|~/)[^']*)'")
-
-CauseKind = Literal["package-missing", "python2-only", "api-removed", "pickle-version", "author-path"]
-
-
-@dataclass(frozen=True, slots=True, kw_only=True)
-class ApiChange:
-    """A library API that a release removed or changed, recognised in an error message."""
-
-    library: str
-    pattern: re.Pattern[str]
-    what: str  # plain words: what changed, in which release, what to use instead
-
-
-# Removals seen in figure scripts, each matched on the error message.  Sources: pandas 2.0.0 release notes
-# ("Removal of prior version deprecations/changes"), NumPy 1.24.0 release notes ("Expired deprecations": the
-# aliases np.float, np.int, ... deprecated in 1.20), the NumPy 2.0 migration guide (removed namespace members),
-# matplotlib 3.9.0 API changes (matplotlib.cm.get_cmap removed), matplotlib 3.6.0 API changes (the "seaborn"
-# style names renamed "seaborn-v0_8"), seaborn 0.12 release notes (keyword-only data arguments).
-API_CHANGES: tuple[ApiChange, ...] = (
-    ApiChange(library="pandas", pattern=re.compile(r"'DataFrame' object has no attribute 'append'|"
-                                                   r"'Series' object has no attribute 'append'"),
-              what="pandas 2.0 removed DataFrame.append and Series.append (use pandas.concat)"),
-    ApiChange(library="pandas", pattern=re.compile(r"object has no attribute 'iteritems'"),
-              what="pandas 2.0 removed iteritems (use items)"),
-    ApiChange(library="pandas", pattern=re.compile(r"unexpected keyword argument '(error_bad_lines|warn_bad_lines|"
-                                                   r"squeeze|line_terminator|date_parser|infer_datetime_format|"
-                                                   r"mangle_dupe_cols|prefix)'"),
-              what="pandas 2.0 removed a reader/writer argument the script passes (see the pandas 2.0 release "
-                   "notes for its replacement)"),
-    ApiChange(library="pandas", pattern=re.compile(r"object has no attribute '(ix|as_matrix|get_value|set_value|"
-                                                   r"sortlevel|select|lookup|swaplevel_|is_copy|ftypes)'"),
-              what="pandas removed an accessor the script uses (.ix, .as_matrix, get_value, lookup ...; use .loc, "
-                   ".iloc or .to_numpy)"),
-    ApiChange(library="numpy", pattern=re.compile(r"module 'numpy' has no attribute '(float|int|bool|object|str|"
-                                                  r"complex|long|unicode)'"),
-              what="NumPy 1.24 removed the aliases np.float, np.int, np.bool, np.object, np.str (use float, int, "
-                   "bool, object, str)"),
-    ApiChange(library="numpy", pattern=re.compile(r"module 'numpy' has no attribute '(NaN|NAN|Inf|Infinity|PINF|NINF|"
-                                                  r"float_|complex_|product|cumproduct|alltrue|sometrue|asfarray|"
-                                                  r"round_|string_|unicode_|mat|Inf)'|"
-                                                  r"`np\.\w+` was removed in the NumPy 2\.0 release"),
-              what="NumPy 2.0 removed a namespace alias the script uses (np.NaN, np.Inf, np.float_, np.product ...; "
-                   "see the NumPy 2.0 migration guide)"),
-    ApiChange(library="matplotlib", pattern=re.compile(r"module 'matplotlib\.cm' has no attribute 'get_cmap'"),
-              what="matplotlib 3.9 removed matplotlib.cm.get_cmap (use matplotlib.colormaps[name])"),
-    ApiChange(library="matplotlib", pattern=re.compile(r"'seaborn[\w-]*' (is )?not (found|a valid package style)"),
-              what="matplotlib 3.6 renamed the 'seaborn' styles to 'seaborn-v0_8-...'"),
-    ApiChange(library="matplotlib", pattern=re.compile(r"unexpected keyword argument '(normed|hold|b)'"),
-              what="matplotlib removed an argument the script passes (normed= became density=; hold= and b= "
-                   "are gone)"),
-)
+from figproof.rules.environment import failure_cause as _failure_cause
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -147,6 +69,7 @@ class Python2Script:
     path: str
     line: int
     syntax: str
+    cell: int | None = None  # the notebook's code cell, counted as figproof counts cells
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -227,14 +150,26 @@ def python2_syntax(source: str) -> tuple[int, str] | None:
         lines = source.splitlines()
         line = exc.lineno or 0
         text = lines[line - 1] if 0 < line <= len(lines) else (exc.text or "")
-        if "Missing parentheses in call to 'print'" in (exc.msg or ""):
-            return line, "print statement"
-        for what, pattern in _PY2_SYNTAX:
-            if pattern.search(text):
-                return line, what
-        return None
+        what = python2_line(text, exc.msg or "")
+        return (line, what) if what is not None else None
     except (ValueError, OverflowError):
         return None
+    return None
+
+
+def python2_cells(text: str) -> tuple[int, int, str] | None:
+    """(cell, line, what) for the first code cell of a notebook's ``text`` that is Python 2 only, else None.
+
+    IPython's own lines (``%matplotlib inline``, ``!pip ...``) are blanked first, as when the notebook runs.
+    """
+    try:
+        cells = code_cells(text)
+    except NotebookError:
+        return None
+    for cell in cells:
+        found = python2_syntax(python_source(cell.source))
+        if found is not None:
+            return cell.number, found[0], found[1]
     return None
 
 
@@ -273,17 +208,33 @@ def survey(root: Path, scripts: Sequence[str], data_files: Sequence[str] = ()) -
         for module in top_imports(sources):
             if module not in stdlib and module not in local:
                 users.setdefault(module, set()).add(script)
-        if script.endswith(".py") and sources:
-            found = python2_syntax(sources[0])
-            if found is not None:
-                python2.append(Python2Script(path=script, line=found[0], syntax=found[1]))
-                for module in _py2_imports(sources[0]) - stdlib - local:
-                    users.setdefault(module, set()).add(script)
+        py2 = _python2(root, script, sources)
+        if py2 is not None:
+            python2.append(py2[0])
+            for module in _py2_imports(py2[1]) - stdlib - local:
+                users.setdefault(module, set()).add(script)
     table = importlib.metadata.packages_distributions()
     imports = tuple(sorted((_import(m, sorted(s), table) for m, s in users.items()), key=lambda i: i.module))
     readers = _readers(texts, data_files, table)
     asks, notes = requirement_asks(root)
     return Survey(imports=imports, python2=tuple(python2), readers=readers, asks=asks, notes=notes)
+
+
+def _python2(root: Path, script: str, sources: Sequence[str]) -> tuple[Python2Script, str] | None:
+    """The script (or notebook) as Python 2 only, with the source of its Python 2 code; None when it is not."""
+    path = root / script
+    if path.suffix == ".ipynb":
+        try:
+            found = python2_cells(path.read_text(encoding="utf-8"))
+        except (OSError, UnicodeDecodeError):
+            return None
+        if found is None:
+            return None
+        return Python2Script(path=script, line=found[1], syntax=found[2], cell=found[0]), "\n".join(sources)
+    if not sources or not script.endswith(".py"):
+        return None
+    at = python2_syntax(sources[0])
+    return (Python2Script(path=script, line=at[0], syntax=at[1]), sources[0]) if at is not None else None
 
 
 def _py2_imports(source: str) -> set[str]:
@@ -447,30 +398,12 @@ def _pyproject_lines(path: Path, notes: list[str]) -> list[str]:
 
 
 def failure_cause(run: ScriptRun, found: Survey) -> tuple[CauseKind, str] | None:
-    """(kind, key) of the environmental cause of ``run``'s failure, or None when it is not environmental."""
-    err = run.error
-    if run.status == "ok" or err is None:
-        return None
-    message = f"{err.type}: {err.message}"
-    if err.type == "SyntaxError" and any(p.path == run.path for p in found.python2):
-        return "python2-only", "python2"
-    optional = _MISSING_OPTIONAL.search(message)
-    if optional:
-        return "package-missing", distribution_of((optional.group(1) or optional.group(2)).split(".")[0])
-    missing = _NO_MODULE.search(message) if err.type in ("ModuleNotFoundError", "ImportError") else None
-    if missing:
-        module = missing.group(1)
-        top = module.split(".")[0]
-        if "." in module and module_available(top):
-            # the package is here but one of its modules is not: a pickle (or code) from another version of it
-            return "pickle-version", top
-        return "package-missing", distribution_of(top)
-    for change in API_CHANGES:
-        if change.pattern.search(message):
-            return "api-removed", change.what
-    if err.type in ("FileNotFoundError", "OSError", "IOError", "PermissionError") and _ABSOLUTE.search(message):
-        return "author-path", "absolute"
-    return None
+    """(kind, key) of the environmental cause of ``run``'s failure, or None when it is not environmental.
+
+    The classification of :func:`figproof.rules.environment.failure_cause` (the one a repo check reports), with
+    the Python 2 scripts this survey found.
+    """
+    return _failure_cause(run, python2={p.path for p in found.python2})
 
 
 def causes(runs: Sequence[ScriptRun], found: Survey) -> tuple[Cause, ...]:
@@ -487,32 +420,11 @@ def causes(runs: Sequence[ScriptRun], found: Survey) -> tuple[Cause, ...]:
     return tuple(_cause(kind, key, sorted(scripts), found) for (kind, key), scripts in sorted(groups.items()))
 
 
-def _scripts(n: int) -> str:
-    return f"{n} script{'s' * (n != 1)}"
-
-
 def _cause(kind: CauseKind, key: str, scripts: list[str], found: Survey) -> Cause:
-    n = len(scripts)
-    if kind == "package-missing":
-        suffixes = next((r.suffixes for r in found.readers if r.distribution == key and r.suffixes), ())
-        suffixes = suffixes or tuple(s for s, (_, dist) in READERS.items() if dist == key)[:1]
-        purpose = f"read the {'/'.join(suffixes)} inputs of" if suffixes else "run"
-        verdict = f"install {key} to {purpose} {_scripts(n)}"
-    elif kind == "python2-only":
-        it = "it" if n == 1 else "them"
-        verdict = f"{_scripts(n)} {'is' if n == 1 else 'are'} Python 2 code, which Python 3 cannot run; run {it} " \
-                  f"with Python 2.7 or port {it} to Python 3"
-    elif kind == "api-removed":
-        verdict = f"{key}: this breaks {_scripts(n)}; install the library version the deposit was made with, or " \
-                  f"update the call"
-    elif kind == "pickle-version":
-        version = installed_version(distribution_of(key)) or "?"
-        verdict = f"{_scripts(n)} load{'s' * (n == 1)} a pickle (or module) made with another version of {key} " \
-                  f"than the {version} installed here; install the version the deposit was made with"
-    else:
-        verdict = f"{_scripts(n)} read{'s' * (n == 1)} files by a path on the author's computer; the path must be " \
-                  f"made relative to the deposit"
-    return Cause(kind=kind, key=key, verdict=verdict, scripts=tuple(scripts))
+    suffixes = next((r.suffixes for r in found.readers if r.distribution == key and r.suffixes), ())
+    installed = installed_version(distribution_of(key)) if kind == "pickle-version" else None
+    text = verdict(kind, key, len(scripts), suffixes=suffixes, installed=installed or "?")
+    return Cause(kind=kind, key=key, verdict=text, scripts=tuple(scripts))
 
 
 __all__ = ["API_CHANGES", "IMPORT_TO_DIST", "READERS", "Cause", "Import", "Survey", "VersionAsk", "causes",

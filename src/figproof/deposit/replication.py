@@ -120,7 +120,7 @@ def unexplained(rep: Replication) -> list[str]:
 
 def other_findings(rep: Replication) -> list[Finding]:
     """figproof's open findings besides the failures the environment section explains."""
-    return [f for f in rep.findings if f.accepted is None and f.rule != "script-fails"]
+    return [f for f in rep.findings if f.accepted is None and f.rule not in ("script-fails", "environment-mismatch")]
 
 
 def _environment(rep: Replication) -> list[str]:
@@ -315,7 +315,7 @@ def report_dict(rep: Replication) -> dict[str, Any]:
                          "scripts": list(i.scripts)} for i in s.imports],
             "readers": [{"module": i.module, "distribution": i.distribution, "installed": i.installed,
                          "suffixes": list(i.suffixes), "scripts": list(i.scripts)} for i in s.readers],
-            "python2": [{"path": p.path, "line": p.line, "syntax": p.syntax} for p in s.python2],
+            "python2": [{"path": p.path, "cell": p.cell, "line": p.line, "syntax": p.syntax} for p in s.python2],
             "requirements": [{"file": a.file, "requirement": a.requirement, "installed": a.installed, "met": a.met}
                              for a in s.asks],
             "notes": list(s.notes),

@@ -471,6 +471,7 @@ class ScriptError(Serialisable):
     message: str = ""
     source: Source | None = None  # the innermost frame in the user's code (maybe in a helper module)
     called_from: Source | None = None  # when ``source`` is in another file: the ran script's own innermost frame
+    text: str = ""  # a SyntaxError's failing line as written (Python 2 code is recognised by it)
 
 
 @model

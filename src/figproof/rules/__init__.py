@@ -15,11 +15,11 @@ from typing import Literal
 from figproof.model.context import RunContext
 from figproof.model.findings import Detail, Finding, Hit, Instance, Severity
 from figproof.model.records import FigureModel, ScriptRun, Source
-from figproof.rules import axes, bars, colour, distribution, reproduce, run, visibility
+from figproof.rules import axes, bars, colour, distribution, environment, reproduce, run, visibility
 from figproof.rules.base import Rule
 
-RULES: tuple[Rule, ...] = (axes.RULES + bars.RULES + colour.RULES + distribution.RULES + run.RULES + reproduce.RULES
-                          + visibility.RULES)
+RULES: tuple[Rule, ...] = (axes.RULES + bars.RULES + colour.RULES + distribution.RULES + run.RULES
+                          + environment.RULES + reproduce.RULES + visibility.RULES)
 
 
 def by_id() -> dict[str, Rule]:
@@ -156,7 +156,10 @@ def apply(
                 found.append(items[0][0])
             else:
                 noun = "scripts" if r.scope == "run" else "figures"
-                merged = _merge([f for f, _ in items], f"{len(where)} {noun}: {_names(where)}")
+                counted = f"{len(where)} {noun}"
+                # a message that counts them already ("install openpyxl to ... of 8 scripts") is followed by names
+                said = all(re.search(rf"(?<!\d){counted}\b", f.message) for f, _ in items)
+                merged = _merge([f for f, _ in items], _names(where) if said else f"{counted}: {_names(where)}")
                 if len({f.script for f, _ in items}) > 1:  # one cause across scripts: no one script owns it
                     merged = dataclasses.replace(merged, script=None)
                 found.append(merged)

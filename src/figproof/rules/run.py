@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import re
 from collections.abc import Iterator
 
 from figproof.model.context import RunContext
@@ -10,6 +9,7 @@ from figproof.model.findings import Hit
 from figproof.model.records import FileEvent, ScriptRun, Source
 from figproof.rules._inputs import names_path, not_found
 from figproof.rules.base import Knobs, rule
+from figproof.rules.environment import reason, repo_cause
 
 _KIND_TEXT = {
     "timeout": "did not finish within the time limit",
@@ -35,17 +35,6 @@ def _missing_input(run: ScriptRun) -> FileEvent | None:
         if names_path(err.message, ev.path):
             return ev
     return None
-
-
-_NO_MODULE = re.compile(r"No module named '([^']+)'")
-
-
-def _missing_package(run: ScriptRun) -> str | None:
-    err = run.error
-    if err is None or err.kind != "exception" or err.type not in ("ModuleNotFoundError", "ImportError"):
-        return None
-    found = _NO_MODULE.search(err.message)
-    return found.group(1).split(".")[0] if found else None
 
 
 def _location(run: ScriptRun) -> tuple[str, Source | None]:
@@ -80,8 +69,8 @@ def _location(run: ScriptRun) -> tuple[str, Source | None]:
         legitimately needs more time or memory, raise `timeout` or `memory-limit` in `[tool.figproof]`.
     """,
     sources=("Common practice: a figure's code must run from a clean checkout to be reproducible.",),
-    # a failure caused by a missing input is a note pointing at input-missing; a missing package is one
-    # finding naming every script that needs it
+    # a failure caused by a missing input is a note pointing at input-missing; one the environment explains
+    # (a missing package, Python 2 code) a note pointing at environment-mismatch
     bad="""
         import matplotlib.pyplot as plt
         import numpy as np
@@ -110,7 +99,8 @@ def script_fails(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator[
     at = f" at line {err.source.line}" if err.source is not None and err.source.path == run.path \
         and err.source.line is not None and err.source.cell is None else where
     # one finding per cause: a missing input file is input-missing's (or input-outside-repo's) error, and
-    # the failure it causes is a note pointing at it; a missing package is one finding for all its scripts
+    # the failure it causes is a note pointing at it; so is a failure environment-mismatch explains (a missing
+    # package, Python 2 code, a removed API), which is one finding for all the scripts it stops
     ev = _missing_input(run)
     if ev is not None:
         rule_id = "input-missing" if ev.inside_repo else "input-outside-repo"
@@ -121,10 +111,10 @@ def script_fails(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator[
         yield Hit(message=f"{run.path} stops{at} because network access is off during a check (reported by "
                           f"input-outside-repo)", source=source, severity="note", key=f"{err.kind}:network")
         return
-    package = _missing_package(run)
-    if package is not None:
-        yield Hit(message=f"the package '{package}' is not installed where figproof runs, so the script stops "
-                          f"at its import", source=source, key=f"package:{package}", group=f"package:{package}")
+    cause = repo_cause(run)
+    if cause is not None:
+        yield Hit(message=f"{run.path} stops{at} because {reason(*cause)} (reported by environment-mismatch)",
+                  source=source, severity="note", key=f"{err.kind}:environment")
         return
     if err.kind == "exception":
         what = f"raised {err.type}: {err.message}" if err.message else f"raised {err.type}"
