@@ -47,7 +47,9 @@ def test_dip_is_order_free_and_affine_invariant() -> None:
 
 
 def test_hartigan_bounds() -> None:
-    # Hartigan & Hartigan 1985 (from memory): for n points the dip lies in [1/(2n), 1/4].
+    # For n points the dip lies in [1/(2n), 1/4]: the lower bound as R's diptest manual states it (Maechler,
+    # diptest::dip, "the same minimum value, 1/(2n)"); the upper bound from Hartigan & Hartigan 1985 (Annals of
+    # Statistics 13(1): 70-84), from memory.
     rng = np.random.default_rng(4)
     for n in (4, 9, 50, 400):
         for x in (rng.uniform(size=n), np.concatenate([np.zeros(n // 2), np.ones(n - n // 2)]) +
@@ -57,8 +59,9 @@ def test_hartigan_bounds() -> None:
 
 
 def test_uniform_dip_tends_to_zero_like_one_over_sqrt_n() -> None:
-    # Hartigan & Hartigan 1985 (from memory): for a uniform sample the dip tends to 0 and sqrt(n)*dip has
-    # a limiting distribution, so the dip shrinks about tenfold for a hundredfold larger n.
+    # Hartigan & Hartigan 1985 (abstract: the distribution of the statistic is determined asymptotically when
+    # sampling from the uniform; R's diptest tabulates quantiles of sqrt(n)*dip): the dip tends to 0 and
+    # sqrt(n)*dip has a limiting distribution, so the dip shrinks about tenfold for a hundredfold larger n.
     rng = np.random.default_rng(5)
     mean_dip = {n: np.mean([dip_statistic(rng.uniform(size=n)) for _ in range(40)]) for n in (100, 10000)}
     assert mean_dip[10000] < 0.01
@@ -69,8 +72,8 @@ def test_uniform_dip_tends_to_zero_like_one_over_sqrt_n() -> None:
 def test_two_separated_normals_tend_to_one_quarter() -> None:
     # Limit, derived from the definition: two equal point masses have dip 1/4 (the best unimodal fit is
     # 1/2 at the first mass rising to 3/4 just before the second), the largest possible dip (Hartigan &
-    # Hartigan 1985, from memory). Two equal normals approach it as their separation grows, slowly,
-    # since a concave fit has to climb the far component's whole rise.
+    # Hartigan 1985; that it is the largest is from memory). Two equal normals approach it as their separation
+    # grows, slowly, since a concave fit has to climb the far component's whole rise.
     rng = np.random.default_rng(6)
     dips = []
     for sep in (4.0, 10.0, 100.0, 1e4):

@@ -55,13 +55,14 @@ def lines_figure(*colors: str, labels: tuple[str, ...] = (), facecolor=(1.0, 1.0
 
 # --- colormap-not-uniform: the table of matplotlib's own maps ---------------------------------------
 
-# Borland & Taylor 2007 (IEEE CG&A) on jet and rainbow maps; the rest of the failing list is the table in
+# Borland & Taylor 2007 (IEEE CG&A 27(2): 14-17) on jet and rainbow maps; the rest of the failing list is the table in
 # issue 3, each map judged by its sampled colours
 FAILING = ["jet", "rainbow", "hsv", "gist_rainbow", "nipy_spectral", "gist_ncar", "turbo", "brg", "cool",
            "flag", "prism", "gist_stern", "ocean", "terrain"]
-# viridis/plasma/inferno/magma: van der Walt & Smith, matplotlib 2.0 defaults (from memory);
-# cividis: Nuñez, Anderton & Renslow 2018 (PLOS ONE); ColorBrewer sequential and diverging maps
-# (Harrower & Brewer 2003, from memory); coolwarm: Moreland 2009 (from memory); twilight: matplotlib 3.0
+# viridis/plasma/inferno/magma: the perceptually uniform sequential maps of matplotlib's "Choosing Colormaps in
+# Matplotlib"; cividis: Nuñez, Anderton & Renslow 2018 (PLOS ONE 13(7): e0199239); ColorBrewer sequential and
+# diverging maps (Harrower & Brewer 2003, The Cartographic Journal 40(1): 27-37); coolwarm: Moreland 2009
+# (ISVC 2009, doi:10.1007/978-3-642-10520-3_9); twilight: matplotlib 3.0
 PASSING = ["viridis", "plasma", "inferno", "magma", "cividis", "gray", "Blues", "BuGn", "BuPu", "GnBu", "Greens",
            "Greys", "Oranges", "OrRd", "PuBu", "PuBuGn", "PuRd", "Purples", "RdPu", "Reds", "YlGn", "YlGnBu",
            "YlOrBr", "YlOrRd", "RdBu", "coolwarm", "Spectral", "twilight", "twilight_shifted"]
@@ -99,7 +100,8 @@ def test_classification_and_numbers() -> None:
     assert problems("hsv")["cyclic-shape"].value > 5
     # gist_rainbow is judged sequential and reverses by far more than 5
     assert problems("gist_rainbow")["reversal"].value > 50
-    # the neutral centre separates diverging maps from rainbows (Moreland 2009, from memory)
+    # the neutral centre separates diverging maps from rainbows (Moreland 2009, ISVC, "Diverging color maps for
+    # scientific visualization")
     assert colour.judge_colormap(matplotlib.colormaps["RdBu"](np.linspace(0, 1, 256))) == ()
 
 
@@ -346,7 +348,9 @@ def text(s: str, color: str, **kw: Any) -> Text:
     [
         ("#777777", 10.0, "normal", True),  # WCAG 2.1: 4.478 < 4.5 for normal text
         ("#767676", 10.0, "normal", False),  # WCAG 2.1: 4.542 passes
-        ("#949494", 18.0, "normal", False),  # large text needs 3:1; #949494 on white is about 3.03 (from memory)
+        # large text needs 3:1; #949494 on white: WCAG 2.1's relative luminance worked by hand, L = 0.2962,
+        # (1 + 0.05) / (0.2962 + 0.05) = 3.03
+        ("#949494", 18.0, "normal", False),
         ("#959595", 18.0, "normal", True),  # ... and #959595 about 2.99, which must not round up to 3
         ("#949494", 14.0, "bold", False),  # WCAG 2.1: 14 pt bold is large text
         ("#949494", 14.0, "normal", True),
@@ -436,7 +440,7 @@ def test_colour_modules_do_not_import_matplotlib() -> None:
 
 
 def test_one_finding_per_map() -> None:
-    """jet has several defects (Borland & Taylor 2007, from memory): the reader gets one finding naming them."""
+    """jet has several defects (Borland & Taylor 2007, IEEE CG&A 27(2)): the reader gets one finding naming them."""
     fig = figure(axes(colormaps=[cmap_model("jet")]))
     [hit] = list(colour.colormap_not_uniform.check(fig, colour.colormap_not_uniform.defaults()))
     assert hit.message.startswith("colour map 'jet' (used by an image)")

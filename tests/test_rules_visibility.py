@@ -90,7 +90,8 @@ def test_nearest_neighbour_flags_match_a_brute_force_distance_matrix() -> None:
 
 def test_grid_estimate_agrees_with_the_exact_count_on_random_points() -> None:
     # for points scattered at random (a Poisson process), P(nearest neighbour < r) = 1 - exp(-density*pi*r^2)
-    # (Clark & Evans 1954, from memory); a grid with cells of area pi*r^2 flags the same expected share
+    # (the nearest-neighbour distribution of a Poisson pattern, whose mean 1/(2*sqrt(density)) is Clark & Evans
+    # 1954, Ecology 35: 445-453); a grid with cells of area pi*r^2 flags the same expected share
     rng = np.random.default_rng(11)
     n, side, r = 50_000, 2000.0, 3.0
     px, py = rng.uniform(0, side, n), rng.uniform(0, side, n)

@@ -129,8 +129,9 @@ def _sample_means(figure: FigureModel, heights: np.ndarray, rtol: float) -> str 
         counts, totals and proportions.
     """,
     sources=(
-        "Weissgerber TL, Milic NM, Winham SJ, Garovic VD (2015) Beyond bar and line graphs: time for a new data "
-        "presentation paradigm. PLOS Biology 13(4): e1002128 (from memory).",
+        "Weissgerber T.L., Milic N.M., Winham S.J., Garovic V.D. (2015) Beyond bar and line graphs: time for a "
+        "new data presentation paradigm. PLOS Biology 13(4): e1002128, doi:10.1371/journal.pbio.1002128 (many "
+        "different distributions give the same bar graph; show the observations in small-sample studies).",
         "Common practice: bars suit counts and proportions; continuous data are shown as points.",
     ),
     bad="""

@@ -101,11 +101,17 @@ def _map_message(cm: ColorMapping, p: MapProblem) -> str:
         colours-confusable-cvd.
     """,
     sources=(
-        "Luo, Cui & Li (2006), Uniform colour spaces based on CIECAM02, Color Res. Appl. 31(4): CAM02-UCS.",
-        "Borland & Taylor (2007), Rainbow color map (still) considered harmful, IEEE CG&A 27(2).",
-        "van der Walt & Smith (2015), the viridis/magma/inferno/plasma maps of matplotlib 2.0 (from memory).",
-        "Nuñez, Anderton & Renslow (2018), cividis, PLOS ONE 13(7) e0199239.",
-        "Moreland (2009), Diverging color maps for scientific visualization (from memory).",
+        "Luo M.R., Cui G., Li C. (2006) Uniform colour spaces based on CIECAM02 colour appearance model. Color "
+        "Research & Application 31(4): 320-330, doi:10.1002/col.20227 (CAM02-UCS).",
+        "Borland D., Taylor R.M. II (2007) Rainbow color map (still) considered harmful. IEEE Computer Graphics "
+        "and Applications 27(2): 14-17.",
+        "matplotlib documentation, 'Choosing Colormaps in Matplotlib': perceptually uniform sequential maps "
+        "(viridis, plasma, inferno, magma, cividis; made by N.J. Smith, S. van der Walt and, for viridis, "
+        "E. Firing, the default map since matplotlib 2.0) have lightness rising monotonically.",
+        "Nuñez J.R., Anderton C.R., Renslow R.S. (2018) Optimizing colormaps with consideration for color vision "
+        "deficiency to enable accurate interpretation of scientific data. PLOS ONE 13(7): e0199239 (cividis).",
+        "Moreland K. (2009) Diverging color maps for scientific visualization. Advances in Visual Computing "
+        "(ISVC 2009), Springer, doi:10.1007/978-3-642-10520-3_9 (a neutral centre between two hues).",
         "Thresholds (J' reversal 5, centre chroma 20, ends 15, step CV 0.6 over 32 blocks): common practice.",
     ),
     bad="""
@@ -194,7 +200,7 @@ _SERIES_KNOBS = (
         *_SERIES_KNOBS,
     ),
     why="""
-        About 8% of men and 0.5% of women of Northern European ancestry have a red-green colour-vision
+        About 8% of men and 0.4% of women of European ancestry have a red-green colour-vision
         deficiency (protan or deutan); tritan vision is much rarer. In most review chains someone cannot
         tell a red series from a green one, and a legend that relies on that difference leaves them
         guessing which curve is which. figproof takes the colours a reader must tell apart in each axes:
@@ -216,13 +222,17 @@ _SERIES_KNOBS = (
         marker, line style or direct labels next to the data.
     """,
     sources=(
-        "Machado, Oliveira & Fernandes (2009), A physiologically-based model for simulation of color vision "
-        "deficiency, IEEE TVCG 15(6) (via colorspacious 'sRGB1+CVD').",
-        "Luo, Cui & Li (2006), CAM02-UCS colour difference ΔE' (via colorspacious).",
-        "Okabe & Ito (2008), Color Universal Design (CUD): how to make figures and presentations that are "
-        "friendly to colorblind people (from memory).",
-        "Prevalence of about 8% of men and 0.5% of women of Northern European ancestry: widely cited figure "
-        "(from memory).",
+        "Machado G.M., Oliveira M.M., Fernandes L.A.F. (2009) A physiologically-based model for simulation of "
+        "color vision deficiency. IEEE Transactions on Visualization and Computer Graphics 15(6): 1291-1298 "
+        "(via colorspacious 'sRGB1+CVD').",
+        "Luo M.R., Cui G., Li C. (2006) Uniform colour spaces based on CIECAM02 colour appearance model. Color "
+        "Research & Application 31(4): 320-330 (CAM02-UCS colour difference ΔE', via colorspacious).",
+        "Okabe M., Ito K. (2002, revised 2008) Color Universal Design (CUD): how to make figures and "
+        "presentations that are friendly to colorblind people. J*Fly web page, jfly.uni-koeln.de/color "
+        "(sections 9 and 10: colours easier to tell apart and a set of eight that both colour-blind and other "
+        "readers tell apart; the hex codes in the fix are that set as commonly quoted, from memory).",
+        "Birch J. (2012) Worldwide prevalence of red-green color deficiency. Journal of the Optical Society of "
+        "America A 29(3): 313-320 (about 8% of men and 0.4% of women of European Caucasian populations).",
         "ΔE' limit 10, the a'b' limits 20/5 and the J' 15 left: common practice.",
     ),
     bad="""

@@ -120,8 +120,9 @@ def _colour_words(hex_: str) -> str:
     sources=(
         "W3C (2018), Web Content Accessibility Guidelines (WCAG) 2.1: relative luminance, contrast ratio, "
         "success criteria 1.4.3 (contrast, minimum) and 1.4.11 (non-text contrast).",
-        "Blackwell (1946), Contrast thresholds of the human eye, J. Opt. Soc. Am. 36(11): the threshold "
-        "contrast falls as the target grows (from memory).",
+        "Blackwell H.R. (1946) Contrast thresholds of the human eye. Journal of the Optical Society of America "
+        "36(11): the threshold contrast falls as the target grows (from memory: the search tool found no copy "
+        "of the paper to check it against).",
         "Mark ratio 1.8:1, large-mark ratio 1.5:1, large marker 10 pt, thick line 4 pt, ΔE' 20 between a "
         "marker and the mark beneath it: common practice (the "
         "lowest ratios of matplotlib's tab10 and seaborn's deep and muted palettes on white are 2.0, 1.95 and 1.9).",

@@ -160,10 +160,11 @@ def _value_sets(ax: Axes, axis: str) -> list[tuple[str, np.ndarray, Source | Non
         fine as they are.
     """,
     sources=(
-        "Wilkinson L. (1999) Dot plots. The American Statistician 53(3):276-281 (dot plots that stack dots at "
-        "bin positions are a binned display; cited from memory).",
-        "Weissgerber T.L. et al. (2015) Beyond bar and line graphs: time for a new data presentation paradigm. "
-        "PLoS Biology 13(4):e1002128 (show the individual values; cited from memory).",
+        "Wilkinson L. (1999) Dot plots. The American Statistician 53(3): 276-281 (abstract: programs that "
+        "reproduce dot plots by simple histogram binning misplace the dots; the paper places each dot near its "
+        "value).",
+        "Weissgerber T.L., Milic N.M., Winham S.J., Garovic V.D. (2015) Beyond bar and line graphs: time for a "
+        "new data presentation paradigm. PLOS Biology 13(4): e1002128 (show the individual values).",
         "Common practice: dot plots of integers or Likert scores are not binned.",
     ),
     knobs=(
@@ -327,10 +328,11 @@ def _positions(ax: Axes) -> list[float]:
         at the median; state n in the caption or axis label. At n below five, show the points alone.
     """,
     sources=(
-        "Krzywinski M., Altman N. (2014) Visualizing samples with box plots. Nature Methods 11:119-120 "
-        "(show the points for small samples; cited from memory).",
-        "Weissgerber T.L. et al. (2015) Beyond bar and line graphs: time for a new data presentation paradigm. "
-        "PLoS Biology 13(4):e1002128 (cited from memory).",
+        "Krzywinski M., Altman N. (2014) Visualizing samples with box plots. Nature Methods 11: 119-120, "
+        "doi:10.1038/nmeth.2813 (a box plot needs at least n = 5; below that, show the individual points).",
+        "Weissgerber T.L., Milic N.M., Winham S.J., Garovic V.D. (2015) Beyond bar and line graphs: time for a "
+        "new data presentation paradigm. PLOS Biology 13(4): e1002128 (summaries hide the data of "
+        "small-sample studies).",
         "Common practice: n < 10 is a small group; 80% of the observations drawn counts as showing them.",
     ),
     knobs=(
@@ -439,11 +441,13 @@ def _has_violin(ax: Axes, box: Box, half: float) -> bool:
         histogram per group. If the modes have a known cause, split the group by it.
     """,
     sources=(
-        "Hartigan J.A., Hartigan P.M. (1985) The dip test of unimodality. Annals of Statistics 13(1):70-84.",
+        "Hartigan J.A., Hartigan P.M. (1985) The dip test of unimodality. Annals of Statistics 13(1): 70-84, "
+        "doi:10.1214/aos/1176346577.",
         "Hartigan P.M. (1985) Algorithm AS 217: computation of the dip statistic to test for unimodality. "
-        "Applied Statistics 34(3):320-325.",
+        "Applied Statistics 34: 320-325.",
         "Hintze J.L., Nelson R.D. (1998) Violin plots: a box plot-density trace synergism. The American "
-        "Statistician 52(2):181-184 (box plots hide multimodality; cited from memory).",
+        "Statistician 52(2): 181-184, doi:10.1080/00031305.1998.10480559 (a box plot shows centre, spread, "
+        "asymmetry and outliers; the density trace adds the shape, such as two modes).",
     ),
     knobs=(
         Knob(name="min_n", default=20, help="Fewest observations behind a box before the dip test is run.",
@@ -619,9 +623,11 @@ def _family(labels: tuple[str, ...]) -> str:
     """,
     sources=(
         "Cumming G., Fidler F., Vaux D.L. (2007) Error bars in experimental biology. Journal of Cell Biology "
-        "177(1):7-11 (cited from memory).",
-        "Krzywinski M., Altman N. (2013) Error bars. Nature Methods 10:921-922 (cited from memory).",
-        "Common practice: warn about SEM bars for n < 10 when the points are not drawn.",
+        "177(1): 7-11 (rule 1: say what the error bars are; rule 2: give n; rule 4: for n = 3, plot the "
+        "points; rules 5-6: SE bars stand in for a 95% CI only from n = 10 on).",
+        "Krzywinski M., Altman N. (2013) Error bars. Nature Methods 10: 921-922 (be clear which measure of "
+        "uncertainty an error bar shows: s.d., s.e.m. or CI).",
+        "SEM bars for n < 10 without the points drawn: the n = 10 of Cumming et al. (2007), rules 5-6.",
     ),
     knobs=(
         Knob(name="rtol", default=0.005, help="Relative tolerance when matching half-lengths to a statistic.",
