@@ -42,6 +42,17 @@ def test_markdown_at_a_folder_and_images_at_a_file_are_usage_errors(tmp_path: Pa
     assert "a file stands where its folder should be" in _one_line(capsys)
 
 
+def test_html_at_a_file_is_a_usage_error(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    (tmp_path / "a.py").write_text(SCRIPT.format(out="a.png"))
+    file = tmp_path / "report.html"
+    file.write_text("x")
+    assert main(["check", str(tmp_path), "--html", str(file)]) == ExitCode.USAGE
+    assert _one_line(capsys) == f"figproof: --html {file}: is a file; give a folder for the visual report"
+    assert main(["check", str(tmp_path), "--html", str(file / "html")]) == ExitCode.USAGE
+    assert _one_line(capsys) == f"figproof: --html {file / 'html'}: a file stands where its folder should be"
+    assert file.read_text() == "x"  # the user's file is untouched
+
+
 @pytest.mark.slow
 @pytest.mark.skipif(_ROOT, reason="running as root, whom chmod does not stop from writing")
 def test_accept_in_a_read_only_repo_is_one_line(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:

@@ -46,10 +46,12 @@ def check_outputs(request: ReportRequest) -> None:
             raise OutputError(f"{flag} {path}: is a folder; give the name of the file to write")
         if path is not None and _blocked_by_file(path):
             raise OutputError(f"{flag} {path}: a file stands where its folder should be")
-    if request.images is not None and request.images.exists() and not request.images.is_dir():
-        raise OutputError(f"--images {request.images}: is a file; give a folder for the images")
-    if request.images is not None and _blocked_by_file(request.images):
-        raise OutputError(f"--images {request.images}: a file stands where its folder should be")
+    folders = {"--images": (request.images, "the images"), "--html": (request.html, "the visual report")}
+    for flag, (folder, what) in folders.items():
+        if folder is not None and folder.exists() and not folder.is_dir():
+            raise OutputError(f"{flag} {folder}: is a file; give a folder for {what}")
+        if folder is not None and _blocked_by_file(folder):
+            raise OutputError(f"{flag} {folder}: a file stands where its folder should be")
 
 
 def _blocked_by_file(path: Path) -> bool:
