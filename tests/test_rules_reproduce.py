@@ -308,6 +308,15 @@ def test_nondeterministic_generic_cause_status_and_inputs() -> None:
     assert [h.key for h in status] == ["status"]
 
 
+def test_a_different_number_of_figures_is_counted_in_words() -> None:
+    # "1 figure", not "1 figures" (common practice: counts agree with their nouns)
+    first = run(figure(script="fig.py"), path="fig.py")
+    second = run(figure(script="fig.py"), figure(script="fig.py", number=2), path="fig.py")
+    found = [h for h in hits(reproduce.output_nondeterministic, first, ctx(first, second_runs={"fig.py": second}))
+             if h.key == "figures"]
+    assert [h.message for h in found] == ["fig.py creates 1 figure in one run and 2 in the other"]
+
+
 def test_deterministic_and_single_run_yield_nothing() -> None:
     y = [2.1, 2.4]
     first, second = _strip([0.1, 0.2], y), _strip([0.1, 0.2], y)

@@ -568,7 +568,8 @@ def output_nondeterministic(run: ScriptRun, context: RunContext, knobs: Knobs) -
         yield Hit(message=f"{label} differs between two runs of {run.path} ({detail}){_cause(phrases)}",
                   source=fig.source if fig is not None and fig.source is not None else script, key=c.path)
     if second is not None and len(run.figures) != len(second.figures):
-        yield Hit(message=f"{run.path} creates {len(run.figures)} figures in one run and {len(second.figures)} "
+        n = len(run.figures)
+        yield Hit(message=f"{run.path} creates {n} figure{'s' * (n != 1)} in one run and {len(second.figures)} "
                           f"in the other", source=script, key="figures")
     for fig in run.figures:
         phrases = differences.get(fig.id, [])
