@@ -297,7 +297,7 @@ def _where(name: str, code: int, axis: Axis) -> str:
     """,
 )
 def axis_clips_data(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
-    """Axis limits cut off plotted values (points, line vertices, bar tops, error-bar ends).
+    """Axis limits cut off plotted values (points, points along lines, bar tops, error-bar ends).
 
     Counted per axes and per kind of value.  A value is cut off when it lies
     beyond a view limit by more than ``tolerance`` of the axis length, or when
