@@ -123,15 +123,22 @@ def test_a_few_overlaps_raise_nothing() -> None:
 
 
 def test_a_quarter_hidden_is_a_warning() -> None:
-    px, py = _pairs(15, 70, 2.0)  # 30 of 100
+    px, py = _pairs(15, 70, 1.0)  # 30 of 100, 1 px apart: under half the 3 px radius
     (hit,) = hits(ax_of(points_px(px, py)))
     assert hit.severity is None and hit.confidence == "certain"
-    assert hit.message == ("30 of 100 markers (30%) sit on top of a neighbour (closer than the marker radius, "
-                           "3.0 px), so readers cannot count them")
+    assert hit.message == ("30 of 100 markers (30%) sit almost on top of a neighbour (centres closer than half "
+                           "the marker radius, 1.5 px), so readers cannot count them")
+
+
+def test_markers_a_radius_apart_are_both_seen() -> None:
+    # equal discs a radius apart overlap by about 39% of their area (circle-circle intersection,
+    # 2 acos(1/2) - sqrt(3)/2 over pi): both are seen and counted; half a radius apart, about 68%
+    px, py = _pairs(30, 40, 2.5)
+    assert hits(ax_of(points_px(px, py))) == []
 
 
 def test_half_hidden_is_an_error() -> None:
-    px, py = _pairs(30, 40, 2.0)  # 60 of 100
+    px, py = _pairs(30, 40, 1.0)  # 60 of 100
     (hit,) = hits(ax_of(points_px(px, py)))
     assert hit.severity == "error" and hit.message.startswith("60 of 100 markers (60%)")
 
@@ -143,10 +150,10 @@ def test_ten_percent_duplicates_is_an_error() -> None:
 
 
 def test_larger_markers_or_dpi_hide_more() -> None:
-    px, py = _pairs(30, 40, 5.0)
-    assert hits(ax_of(points_px(px, py)), dpi=72) == []  # radius 3 px < 5 px gap
-    assert hits(ax_of(points_px(px, py)), dpi=144)[0].severity == "error"  # radius 6 px
-    # s = 100: radius exactly 5 px, not closer than the 5 px gap; s = 121: radius 5.5 px
+    px, py = _pairs(30, 40, 2.5)
+    assert hits(ax_of(points_px(px, py)), dpi=72) == []  # half the 3 px radius < 2.5 px gap
+    assert hits(ax_of(points_px(px, py)), dpi=144)[0].severity == "error"  # radius 6 px, half of it 3 px
+    # s = 100: half the radius exactly 2.5 px, not closer than the gap; s = 121: 2.75 px
     assert hits(ax_of(points_px(px, py, size=[100.0])), dpi=72) == []
     assert hits(ax_of(points_px(px, py, size=[121.0])), dpi=72)[0].severity == "error"
     # per-point sizes: the larger radius of the pair decides
@@ -226,18 +233,23 @@ def test_nearly_transparent_isolated_markers_are_faint() -> None:
 
 
 def test_faint_markers_that_pile_up_are_not_faint() -> None:
-    # 500 markers with alpha 0.03 in one 10 px blob: stacked, they build a visible density
+    # 500 markers with alpha 0.3 in a 100 px blob: stacked, they build a visible density (each centre lies
+    # under about 1 + 500 * pi * 3**2 / 100**2 = 2.4 markers: 1 - 0.7**2.4 = 58% opaque, short of saturation)
     rng = np.random.default_rng(5)
-    pts = points_px(rng.uniform(500, 510, 500), rng.uniform(500, 510, 500), face=(0, 0, 0, 0.03))
+    pts = points_px(rng.uniform(500, 600, 500), rng.uniform(500, 600, 500), face=(0, 0, 0, 0.3))
     found = by_key(hits(ax_of(pts)))
-    # drawn see-through, the pile shows its density: not reported (common practice: alpha 0.3 or less)
+    # drawn see-through, the pile shows its density: not reported (common practice)
     assert "faint" not in found and "overlap" not in found
+    # the same markers in a 10 px blob: about 140 deep, the stack is saturated and hides how many there are
+    # (1 - 0.7**7 = 92% opaque from 7 markers on)
+    deep = points_px(rng.uniform(500, 510, 500), rng.uniform(500, 510, 500), face=(0, 0, 0, 0.3))
+    assert by_key(hits(ax_of(deep)))["overlap"].severity == "error"
     opaque = points_px(rng.uniform(500, 510, 500), rng.uniform(500, 510, 500), face=(0, 0, 0, 0.5))
     assert by_key(hits(ax_of(opaque)))["overlap"].severity == "error"
 
 
 def test_problems_of_one_axes_are_one_finding() -> None:
-    px, py = _pairs(15, 70, 2.0)  # 30 of 100 overlap
+    px, py = _pairs(15, 70, 1.0)  # 30 of 100 overlap
     faint = points_px([100.0, 900.0], [100.0, 900.0], face=(1, 1, 1, 1))
     (hit,) = points_hidden.check(figure(ax_of(points_px(px, py), faint), dpi=72.0), points_hidden.defaults())
     assert len(hit.details) == 2 and "1 more problem" in hit.message
@@ -284,8 +296,8 @@ def test_polar_3d_and_colorbar_axes_are_skipped() -> None:
 
 
 def test_odd_dpi_and_missing_sizes_fall_back_to_matplotlib_defaults() -> None:
-    # rcParams figure.dpi = 100 and lines.markersize = 6 (s = 36): radius 4.17 px
-    px, py = _pairs(30, 40, 4.0)
+    # rcParams figure.dpi = 100 and lines.markersize = 6 (s = 36): radius 4.17 px, half of it 2.08 px
+    px, py = _pairs(30, 40, 2.0)
     pts = points_px(px, py, size=[])
     assert hits(ax_of(pts), dpi=float("nan"))[0].severity == "error"
     assert hits(ax_of(pts), dpi=0.0)[0].severity == "error"
@@ -296,7 +308,7 @@ def test_a_million_points_use_the_grid() -> None:
     n = 1_000_000
     pts = points_px(rng.uniform(0, 1000, n), rng.uniform(0, 1000, n), size=4.0)
     (hit,) = hits(ax_of(pts))
-    assert hit.confidence == "likely" and "sit on top of a neighbour" in hit.message
+    assert hit.confidence == "likely" and "sit almost on top of a neighbour" in hit.message
     assert hit.severity == "error"
 
 

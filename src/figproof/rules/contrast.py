@@ -31,7 +31,7 @@ from figproof.science import colour as cs
 
 WCAG_GRAPHICS = 3.0  # WCAG 2.1 SC 1.4.11: graphical objects need 3:1 against adjacent colours
 MARK_DELTA_E = 20.0  # CAM02-UCS difference that tells a mark from another mark beneath it: common practice
-DENSITY_ALPHA = 0.3  # markers this see-through are drawn faint on purpose (as points-hidden's density_alpha)
+DENSITY_ALPHA = 0.3  # markers this see-through are drawn faint on purpose: common practice
 
 _BOLD = {"bold", "heavy", "extra bold", "extrabold", "ultrabold", "black"}
 

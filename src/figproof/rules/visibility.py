@@ -27,7 +27,9 @@ COVERED_ERROR = 0.05
 OPAQUE_ALPHA = 0.9
 FAINT_DELTA_E = 5.0
 GRID_ABOVE = 2e5
-DENSITY_ALPHA = 0.3  # common practice: at 0.3 or less, ten stacked markers still differ from one
+DENSITY_ALPHA = 0.6  # common practice: markers this see-through show where they pile up...
+SATURATION = 0.9  # ...until a stack is this opaque (at alpha 0.5, four markers): deeper stacks hide counts
+COVER_SHARE = 0.5  # centres closer than half a radius: the upper marker covers about two thirds of the lower
 
 _DEFAULT_DPI = 100.0  # matplotlib's rcParams figure.dpi default
 _DEFAULT_SIZE = 36.0  # matplotlib's rcParams lines.markersize (6 pt) squared
@@ -242,7 +244,11 @@ def _faint(ps: PointSet, keep: np.ndarray, background: np.ndarray, limit: float)
         (large markers, many points, values rounded to a few levels), markers painted over by bars or the
         legend drawn later, and markers so transparent or pale that they vanish into the background all
         break that promise without any visible sign: the reader counts fewer points, misjudges where most of
-        them lie, and cannot see outliers.
+        them lie, and cannot see outliers. A marker counts as hidden when a neighbour's centre is closer
+        than half its radius (the upper disc then covers about two thirds of it; a radius apart, both are
+        plainly seen). Markers drawn see-through (opacity 0.6 or less) show where they pile up, so their
+        overlap is not reported, unless many stack on one spot: where k markers of opacity a overlap, the
+        spot is 1 - (1 - a)^k opaque, and from 90% on one more marker changes nothing a reader sees.
     """,
     fix="""
         For overlap: use smaller markers (`s=`), spread tied values with jitter or a swarm layout
@@ -259,7 +265,8 @@ def _faint(ps: PointSet, keep: np.ndarray, background: np.ndarray, limit: float)
         "zorders are drawn in the order the artists were added.",
         "Luo, Cui & Li (2006), CAM02-UCS: colour difference of a marker blended over the background.",
         "Common practice: one observation per visible marker; 25% / 50% hidden and 10% duplicates as "
-        "warning / error levels are this project's choice.",
+        "warning / error levels, half a radius between centres, opacity 0.6 and a 90% opaque stack are this "
+        "project's choice; the overlap of two equal discs is the circle-circle intersection area.",
     ),
     knobs=(
         Knob(name="hidden_warning", default=HIDDEN_WARNING, minimum=0, maximum=1,
@@ -279,7 +286,8 @@ def _faint(ps: PointSet, keep: np.ndarray, background: np.ndarray, limit: float)
         Knob(name="grid_above", default=GRID_ABOVE, minimum=2,
              help="Point count above which overlap is estimated on a grid instead of by nearest neighbours."),
         Knob(name="density_alpha", default=DENSITY_ALPHA, minimum=0, maximum=1,
-             help="Marker opacity at or below which overlapping markers show density and are not reported."),
+             help="Marker opacity at or below which overlapping markers show density and are not reported, "
+                  "unless many pile up on one spot (a stack 90% opaque)."),
     ),
     bad="""
         import matplotlib.pyplot as plt
@@ -313,7 +321,7 @@ def points_hidden(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
 
     Per point set, in display pixels, counting only markers inside the axes
     box (markers outside it are axis-clips-data's business).  Three reasons,
-    each its own finding: overlap (nearest neighbour closer than the larger
+    each its own finding: overlap (nearest neighbour closer than half the larger
     of the two marker radii; duplicates closer than ``duplicate_px``),
     covered (the whole marker inside a bar or shape with face alpha >=
     ``opaque_alpha`` drawn later, or inside the legend box), and faint (the
@@ -362,6 +370,33 @@ def _see_through(ps: PointSet) -> float:
     return alpha
 
 
+def _deep_share(px: np.ndarray, py: np.ndarray, radius: float, alpha: float, grid_above: float) -> float:
+    """Share of markers under so many others that their see-through colour no longer adds up.
+
+    Where k markers of opacity ``alpha`` cover one spot it is 1 - (1 - alpha)**k opaque; from SATURATION
+    on, one more marker changes nothing a reader can see.  A marker's depth is the number of markers
+    (itself included) whose disc covers its centre.
+    """
+    n = px.size
+    if n == 0 or alpha >= 1.0:
+        return 1.0 if n else 0.0
+    depth = math.ceil(math.log(1.0 - SATURATION) / math.log(1.0 - max(alpha, 1e-6)))
+    xy = np.column_stack([px, py])
+    if n <= BRUTE_FORCE_MAX:
+        d2 = ((xy[:, None, :] - xy[None, :, :]) ** 2).sum(axis=2)
+        counts = (d2 < radius * radius).sum(axis=1)
+    elif n <= grid_above:
+        from scipy.spatial import cKDTree
+
+        counts = np.asarray(cKDTree(xy).query_ball_point(xy, radius, return_length=True))
+    else:
+        side = max(math.sqrt(math.pi) * radius, 1e-9)
+        cells = np.floor(xy / side)
+        _, inverse, per_cell = np.unique(cells, axis=0, return_inverse=True, return_counts=True)
+        counts = per_cell[inverse.ravel()]
+    return float((counts >= depth).mean())
+
+
 def point_set_problems(ax: Axes, i: int, ps: PointSet, figure: FigureModel, k: dict[str, float],
                     dpi: float) -> Iterator[Hit]:
     x0, y0, x1, y1 = ax.display_box
@@ -382,7 +417,9 @@ def point_set_problems(ax: Axes, i: int, ps: PointSet, figure: FigureModel, k: d
     radius = marker_radius_px(sizes[keep] if sizes is not None else np.full(m, _DEFAULT_SIZE), dpi)
     kx, ky = px[keep], py[keep]
 
-    ov = overlap(kx, ky, radius, duplicate_px=k["duplicate_px"], grid_above=k["grid_above"])
+    # two markers whose centres are a radius apart are both plainly seen; closer than half a radius, the
+    # upper one covers about two thirds of the lower (equal discs): that one can no longer be counted
+    ov = overlap(kx, ky, COVER_SHARE * radius, duplicate_px=k["duplicate_px"], grid_above=k["grid_above"])
     hidden, dups = int(ov.hidden.sum()), int(ov.duplicate.sum())
     severity: str | None = None
     if hidden >= k["hidden_error"] * m or (dups and dups >= k["duplicate_error"] * m):
@@ -391,11 +428,15 @@ def point_set_problems(ax: Axes, i: int, ps: PointSet, figure: FigureModel, k: d
         severity = "warning"
     # markers drawn see-through already show density (the remedy for overplotting), and markers along a
     # drawn line show its course: their overlap is not reported
-    remedied = _see_through(ps) <= k["density_alpha"] or _on_a_line(ax, ps)
+    alpha = _see_through(ps)
+    see_through = alpha <= k["density_alpha"] and \
+        _deep_share(kx, ky, float(np.median(radius)), alpha, k["grid_above"]) < k["duplicate_error"]
+    remedied = see_through or _on_a_line(ax, ps)
     if severity is not None and not remedied:
         dup_text = f", {dups} of them drawn on exactly the same spot" if dups else ""
-        yield Hit(message=(f"{counted(hidden, m, 'marker', 'markers')} sit on top of a neighbour (closer than "
-                           f"the marker radius, {float(np.median(radius)):.1f} px){dup_text}, so readers cannot "
+        yield Hit(message=(f"{counted(hidden, m, 'marker', 'markers')} sit almost on top of a neighbour "
+                           f"(centres closer than half the marker radius, "
+                           f"{COVER_SHARE * float(np.median(radius)):.1f} px){dup_text}, so readers cannot "
                            f"count them"),
                   source=ps.source, axes=ax.index, severity="error" if severity == "error" else None,
                   confidence="certain" if ov.exact else "likely", key=f"points:{i}:overlap")
