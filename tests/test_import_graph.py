@@ -223,3 +223,23 @@ def test_a_changed_helper_selects_the_scripts_that_import_it_through_other_modul
     assert scripts == ("fig_growth.py", "fig_other.py")
     # never run before, so nothing is recorded: the import graph decides (the code never names plots.py)
     assert scripts_touched_by(tmp_path, scripts, ("lab/plots.py",)) == ["fig_growth.py"]
+
+
+def test_a_drawing_module_only_tests_import_is_a_helper_not_a_script(tmp_path: Path) -> None:
+    put(tmp_path, "plate_plots.py", HELPER)
+    put(tmp_path, "tests/test_plate_plots.py", "from plate_plots import bar\n\ndef test_bar(tmp_path):\n"
+        "    bar([1], tmp_path / 'b.png')\n")
+    inv = discover(Config(root=tmp_path))
+    assert inv.scripts == ()  # run on its own it would draw nothing: "ok, 0 figures" said nothing true
+    assert inv.helpers == (("plate_plots.py", ()),)
+
+
+def test_a_check_that_finds_only_helpers_says_so(tmp_path: Path) -> None:
+    put(tmp_path, "plate_plots.py", HELPER)
+    put(tmp_path, "tests/test_plate_plots.py", "import plate_plots\n")
+    out = tmp_path.parent / f"{tmp_path.name}-report.json"
+    assert main(["check", str(tmp_path), "--quiet", "--no-cache", "--json", str(out)]) == ExitCode.PASSED
+    report = json.loads(out.read_text())
+    assert report["helpers"] == [{"path": "plate_plots.py", "used_by": []}]
+    assert "no figure scripts found: the 1 module that draws is a helper that only tests or other helpers import" \
+        in report["notes"]

@@ -201,7 +201,11 @@ def _check(path: Path, config: Config, inventory: Inventory, options: CheckOptio
     pending = [f for f in findings if f.fingerprint in later]
     findings = [f for f in findings if f.fingerprint not in later]
     notes = [*config.notes, *shared_notes, *notes]
-    if not inventory.scripts:
+    if not inventory.scripts and inventory.helpers:
+        n = len(inventory.helpers)
+        notes.append(f"no figure scripts found: the {n} module{'s' * (n != 1)} that draw{'s' * (n == 1)} "
+                     f"{'are helpers' if n != 1 else 'is a helper'} that only tests or other helpers import")
+    elif not inventory.scripts:
         notes.append("no figure scripts found (no .py or .ipynb file imports matplotlib, seaborn or pandas plotting)")
     summary = summarise(runs, findings, config.fail_on, tree_changed=bool(tree_changes))
     result = CheckResult(root=_shown_root(config.root, path), version=__version__, runs=runs,

@@ -353,15 +353,16 @@ class ImportGraph:
 
     A file draws when its own code imports a plotting library (see :func:`code_draws`).  A script is a figure
     script when it draws or imports (directly or through other repo modules) a repo module that draws.  A
-    ``.py`` module that draws, that other candidates import and that draws nothing when run on its own
-    (:func:`draws_at_top_level`) is a helper: it is not run, the scripts that import it are.  Code is read,
-    never run; import cycles end where a module was already seen.
+    ``.py`` module that draws, that other candidates (or the repo's tests) import and that draws nothing when
+    run on its own (:func:`draws_at_top_level`) is a helper: it is not run, the scripts that import it are.
+    Code is read, never run; import cycles end where a module was already seen.
     """
 
-    def __init__(self, root: Path, candidates: list[str]) -> None:
+    def __init__(self, root: Path, candidates: list[str], tests: Iterable[str] = ()) -> None:
         self.root = root
         self._own = {f: _draws(root / f) for f in candidates}
-        edges = import_edges(root, candidates)
+        # tests are never figure scripts, but a module they import is meant to be imported: a helper
+        edges = import_edges(root, [*candidates, *tests])
         importers: dict[str, list[str]] = {}
         for f, deps in edges.items():
             for dep in deps:
@@ -414,7 +415,8 @@ def _scripts(config: Config, files: list[str], skip: _Skipper
             chosen.update(hits)
         picked = sorted(chosen)
     else:
-        graph = ImportGraph(config.root, [f for f in candidates if not _is_test(f)])
+        graph = ImportGraph(config.root, [f for f in candidates if not _is_test(f)],
+                            [f for f in candidates if _is_test(f)])
         picked = graph.scripts
         helpers = graph.helpers
     excluded = [f for f in picked if _any_match(f, config.exclude)]
