@@ -176,8 +176,9 @@ def test_findings_in_a_helper_belong_to_the_script_that_ran(tmp_path: Path) -> N
     notebook(repo, "notebooks/summary.ipynb", "from lab import plots", "plots.broken()")
     put(repo, "figproof.toml", 'working-dir = "root"\n')
     (repo / "figures").mkdir()
-    out = tmp_path / "r.json"
-    assert main(["check", str(repo), "--quiet", "--no-cache", "--json", str(out)]) == ExitCode.FAILED
+    out, sarif, md = tmp_path / "r.json", tmp_path / "r.sarif", tmp_path / "r.md"
+    assert main(["check", str(repo), "--quiet", "--no-cache", "--json", str(out), "--sarif", str(sarif),
+                 "--markdown", str(md)]) == ExitCode.FAILED
     report = json.loads(out.read_text())
     assert [s["path"] for s in report["scripts"]] == ["fig_growth.py", "fig_yield.py", "notebooks/summary.ipynb"]
     assert report["helpers"] == [{"path": "lab/plots.py",
@@ -191,6 +192,13 @@ def test_findings_in_a_helper_belong_to_the_script_that_ran(tmp_path: Path) -> N
     fails = sorted((f["path"], f["line"], f.get("cell")) for f in by_rule["script-fails"])
     assert fails == [("fig_yield.py", 3, None), ("notebooks/summary.ipynb", 1, 2)]
     assert all("lab/plots.py:12" in f["message"] for f in by_rule["script-fails"])
+    # SARIF 2.1.0 result property bag (§3.8) and the markdown row name the script whose run it comes from
+    [result] = [r for r in json.loads(sarif.read_text())["runs"][0]["results"] if r["ruleId"] == "axis-clips-data"]
+    assert result["properties"]["script"] == "fig_growth.py"
+    assert result["locations"][0]["physicalLocation"]["artifactLocation"]["uri"] == "lab/plots.py"
+    text = md.read_text()
+    assert "| `lab/plots.py:6` (run of `fig_growth.py`) | axis-clips-data |" in text
+    assert "- `lab/plots.py`, used by `fig_growth.py`, `fig_yield.py`, `notebooks/summary.ipynb`" in text
 
 
 @pytest.mark.slow
@@ -243,3 +251,16 @@ def test_a_check_that_finds_only_helpers_says_so(tmp_path: Path) -> None:
     assert report["helpers"] == [{"path": "plate_plots.py", "used_by": []}]
     assert "no figure scripts found: the 1 module that draws is a helper that only tests or other helpers import" \
         in report["notes"]
+
+
+def test_the_visual_report_files_a_helper_finding_under_the_script_that_ran() -> None:
+    from figproof.model.findings import CheckResult, Finding, Summary
+    from figproof.report import html
+
+    f = Finding(rule="axis-clips-data", severity="error", confidence="certain", path="lab/plots.py", line=6,
+                figure="fig_growth.py#1", message="2 of 3 bar tops lie above the y-limit", script="fig_growth.py")
+    result = CheckResult(root=".", version="0", runs=(), findings=(f,), helpers=(("lab/plots.py", ("fig_growth.py",)),),
+                         summary=Summary(scripts=1, figures=1, errors=1, warnings=0, notes=0, accepted=0, passed=False))
+    assert 'data-script="fig_growth.py"' in html._attrs(f)
+    options = html._filters(result)
+    assert '<option value="fig_growth.py">' in options and "lab/plots.py" not in options

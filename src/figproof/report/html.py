@@ -119,7 +119,7 @@ def _anchor(figure_id: str) -> str:
 
 def _attrs(f: Finding) -> str:
     return (f'data-finding data-rule="{_e(f.rule)}" data-severity="{_e(f.severity)}" '
-            f'data-script="{_e(f.path)}" data-accepted="{"yes" if f.accepted else "no"}"')
+            f'data-script="{_e(f.script or f.path)}" data-accepted="{"yes" if f.accepted else "no"}"')
 
 
 def _header(result: CheckResult, provenance: Mapping[str, Any]) -> str:
@@ -153,7 +153,8 @@ def chip(kind: str, count: int, label: str) -> str:
 
 def _filters(result: CheckResult) -> str:
     rules = sorted({f.rule for f in result.findings})
-    scripts = sorted({f.path for f in result.findings} | {r.path for r in result.runs})
+    # a finding in a helper module is filed under the script that ran it
+    scripts = sorted({f.script or f.path for f in result.findings} | {r.path for r in result.runs})
 
     def options(values: Sequence[str]) -> str:
         return "".join(f'<option value="{_e(v)}">{_e(v)}</option>' for v in values)

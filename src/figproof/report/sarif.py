@@ -84,6 +84,8 @@ def _result(f: Finding, index: dict[str, int]) -> dict[str, Any]:
             props[name] = value
     if f.cell is not None and f.line is not None:
         props["cellLine"] = f.line
+    if f.script is not None and f.script != f.path:  # located in a helper module this script ran
+        props["script"] = f.script
     out: dict[str, Any] = {
         "ruleId": f.rule,
         "level": LEVELS.get(f.severity, "warning"),
