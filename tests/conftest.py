@@ -8,6 +8,7 @@ the header and the summary say what to install.
 from __future__ import annotations
 
 import importlib.util
+import os
 from collections.abc import Iterator
 from typing import Any
 
@@ -31,17 +32,84 @@ def pytest_terminal_summary(terminalreporter: Any) -> None:
         terminalreporter.write_line(HINT, yellow=True)
 
 
+class _Shared:
+    """The session's warm pool, started on first use with the session's environment and replaced once a check
+    has stopped it (an interrupted check kills its children and starts no more)."""
+
+    def __init__(self) -> None:
+        self.pool: Any = None
+        self.temp = os.environ.get("TMPDIR")
+
+    def get(self) -> Any:
+        if self.pool is None or getattr(self.pool, "_stopped", False):
+            from figproof.run.pool import default_runner
+
+            self.close()
+            self.pool = default_runner()
+        return self.pool
+
+    def close(self) -> None:
+        close = getattr(self.pool, "close", None)
+        if callable(close):
+            close()
+        self.pool = None
+
+
+class _Lent:
+    """The shared pool as one check's runner: the check's ``close`` leaves it running for the next test,
+    ``stop`` stops it as it would the check's own pool (and the next check gets a new one)."""
+
+    def __init__(self, shared: _Shared) -> None:
+        self._shared = shared
+
+    @property
+    def name(self) -> str:
+        return str(getattr(self._shared.get(), "name", "warm-pool"))
+
+    def run(self, task: Any, options: Any) -> Any:
+        return self._shared.get().run(task, options)
+
+    def stop(self) -> None:
+        stop = getattr(self._shared.pool, "stop", None)
+        if callable(stop):
+            stop()
+
+    def close(self) -> None:
+        pass
+
+
 @pytest.fixture(scope="session")
-def warm_runner() -> Iterator[Any]:
+def _shared_pool() -> Iterator[_Shared]:
+    shared = _Shared()
+    yield shared
+    shared.close()
+
+
+@pytest.fixture(scope="session")
+def warm_runner(_shared_pool: _Shared) -> Any:
     """One runner for the whole session (the warm pool where it starts), for tests that check many small repos.
 
     Starting a pool costs over a second; a check of one small script through a running pool costs a fifth of
     that.  Each check still gets its own repo copy and a freshly forked child, so sharing changes no result.
     """
+    return _Lent(_shared_pool)
+
+
+@pytest.fixture(autouse=True)
+def _checks_share_the_warm_pool(_shared_pool: _Shared, monkeypatch: pytest.MonkeyPatch) -> None:
+    """Checks that would start a warm pool of their own (``figproof.pipeline.check``, and so ``figproof check``
+    run in this process) borrow the session's instead, as ``warm_runner`` does.
+
+    Where a test points ``TMPDIR`` elsewhere or sets ``FIGPROOF_RUNNER``, the check builds its own runner as
+    it would outside the tests (those tests look at what a check leaves in its temp folder, or at the runner
+    choice); a test that replaces ``default_runner`` itself wins, its patch coming later.
+    """
+    import figproof.pipeline
     from figproof.run.pool import default_runner
 
-    runner = default_runner()
-    yield runner
-    close = getattr(runner, "close", None)
-    if callable(close):
-        close()
+    def borrowed() -> Any:
+        if os.environ.get("TMPDIR") != _shared_pool.temp or "FIGPROOF_RUNNER" in os.environ:
+            return default_runner()
+        return _Lent(_shared_pool)
+
+    monkeypatch.setattr(figproof.pipeline, "default_runner", borrowed)
