@@ -492,3 +492,32 @@ def test_markers_on_another_mark_pass_by_colour_difference() -> None:
                             "backdrops": np.tile(hexrgba(under), (2, 1))})
     assert run(colour.low_contrast, figure(axes(points=[on("#ff0000", "#1f77b4")]))) == []
     assert run(colour.low_contrast, figure(axes(points=[on("#dddddd", "#d0d0d0")])))
+
+
+@pytest.mark.parametrize("name", ["viridis", "cividis", "Blues"])
+def test_sampled_sequential_maps_are_ramps_however_finely_or_randomly_sampled(name: str) -> None:
+    # the reference ramps are matplotlib's own maps (viridis and cividis are built to rise evenly in
+    # lightness; Blues is a ColorBrewer sequential scheme); qualitative palettes are not ramps
+    from figproof.rules._series import looks_sequential
+
+    cmap = matplotlib.colormaps[name]
+    assert looks_sequential(cmap(np.linspace(0, 1, 256))[:, :3])
+    assert looks_sequential(cmap(np.random.default_rng(1).uniform(0, 1, 40))[:, :3])
+    assert not looks_sequential(matplotlib.colormaps["tab10"](np.arange(10))[:, :3])
+
+
+def test_pale_steps_of_a_ramp_are_the_design() -> None:
+    # points coloured one by one along Blues (an ordered value), and lines of one palette split over panels
+    blues = matplotlib.colormaps["Blues"](np.linspace(0.05, 1.0, 12))
+    pts = points(np.linspace(0.1, 0.9, 12), np.linspace(0.1, 0.9, 12))
+    pts = type(pts)(**{**{f: getattr(pts, f) for f in pts.__dataclass_fields__},
+                       "facecolors": blues, "edgecolors": blues})
+    assert run(colour.low_contrast, figure(axes(points=[pts]))) == []
+    ramp = [tuple(c) for c in matplotlib.colormaps["Blues"](np.linspace(0.1, 1.0, 6))]
+    panels = [axes(index=k, lines=[line([0, 1], [0, 1], color=ramp[2 * k], label=f"dose {2 * k}"),
+                                   line([0, 1], [1, 0], color=ramp[2 * k + 1], label=f"dose {2 * k + 1}")])
+              for k in range(3)]
+    assert run(colour.low_contrast, figure(*panels)) == []
+    assert run(colour.colours_confusable_cvd, figure(*panels)) == []
+    # the same pale yellow alone is a faint line (WCAG 2.1 contrast 1.07:1 on white)
+    assert run(colour.low_contrast, figure(axes(lines=[line([0, 1], [0, 1], color=hexrgba("#ffff00"))])))

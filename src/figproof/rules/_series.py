@@ -132,6 +132,15 @@ def palette_colors(cm: ColorMapping, max_colors: float) -> np.ndarray:
     return rows
 
 
+def _thinned(lightness: np.ndarray, step: float) -> np.ndarray:
+    """Indices of sorted ``lightness`` values kept so that each is at least ``step`` above the last kept."""
+    keep = [0]
+    for k in range(1, lightness.size):
+        if lightness[k] - lightness[keep[-1]] >= step:
+            keep.append(k)
+    return np.asarray(keep)
+
+
 def looks_sequential(rgb: np.ndarray) -> bool:
     """True when three or more colours lie along one lightness ramp: the steps of a sequential map.
 
@@ -145,8 +154,13 @@ def looks_sequential(rgb: np.ndarray) -> bool:
     if rgb.shape[0] < 3:
         return False
     ucs = cs.srgb_to_ucs(rgb)[np.argsort(cs.srgb_to_ucs(rgb)[:, 0])]
-    if np.min(np.diff(ucs[:, 0])) < 1.0:
-        return False  # two colours of (almost) one lightness: not a ramp
+    steps = np.diff(ucs, axis=0)
+    flat = np.abs(steps[:, 0]) < 1.0
+    if np.any(flat & (np.hypot(steps[:, 1], steps[:, 2]) >= 5.0)):
+        return False  # two colours of (almost) one lightness but another hue: not a ramp
+    ucs = ucs[_thinned(ucs[:, 0], 1.0)]  # a finely sampled map (256 steps of viridis): steps of 1 J' or more
+    if ucs.shape[0] < 3:
+        return False
     path = float(np.linalg.norm(np.diff(ucs, axis=0), axis=1).sum())
     ends = float(np.linalg.norm(ucs[-1] - ucs[0]))
     if ends <= 0.0 or path > 1.42 * ends:
@@ -317,10 +331,28 @@ class AxesPairs:
     pairs: list[tuple[int, int]]
 
 
+def ramp_kinds(per_axes: list[list[Series]]) -> set[str]:
+    """Kinds of mark (line, points, ...) whose colours over the whole figure step along one lightness ramp.
+
+    Facets of one plot share its palette: a sequential hue palette split over panels, two or three
+    levels in each, is still a map of an ordered value.
+    """
+    kinds: set[str] = set()
+    for what in {s.what for series in per_axes for s in series}:
+        rgb = np.array([s.rgba[:3] for series in per_axes for s in series if s.what == what])
+        rows = distinct_rows(np.c_[rgb, np.ones(len(rgb))])[:, :3]
+        if rows.shape[0] >= 3 and looks_sequential(rows):
+            kinds.add(what)
+    return kinds
+
+
 def axes_pairs(figure: FigureModel, knobs: Knobs) -> list[AxesPairs]:
     out: list[AxesPairs] = []
-    for ax in figure.axes:
-        series = axes_series(ax, palette_max_colors=knobs["palette_max_colors"], max_colors=knobs["max_colors"])
+    per_axes = [axes_series(ax, palette_max_colors=knobs["palette_max_colors"], max_colors=knobs["max_colors"])
+                for ax in figure.axes]
+    ramps = ramp_kinds(per_axes)
+    for ax, series in zip(figure.axes, per_axes, strict=True):
+        series = [s for s in series if s.what not in ramps]
         if len(series) < 2:
             continue
         bg = axes_background(ax, figure)

@@ -150,7 +150,8 @@ def low_contrast(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
     """Text or data marks whose contrast with what lies beneath them is too low to read."""
     # one cause, one finding: a pale palette or a pale text colour is one choice however many panels show it
     texts = [h for ax in figure.axes for h in _text_hits(ax, figure, knobs)]
-    marks = [h for ax in figure.axes for h in _mark_hits(ax, figure, knobs)]
+    ramp = _lines_on_a_ramp(figure)
+    marks = [h for ax in figure.axes for h in _mark_hits(ax, figure, knobs, ramp)]
     for found, noun in ((texts, "text"), (marks, "mark")):
         if found:
             found.sort(key=lambda item: item[0])  # worst first; stable, so drawing order breaks ties
@@ -158,6 +159,13 @@ def low_contrast(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
 
 
 _NOUNS = {"mark": ("mark", "marks"), "text": ("group of texts", "groups of texts")}
+
+
+def _lines_on_a_ramp(figure: FigureModel) -> bool:
+    """The figure's data lines take three or more colours along one lightness ramp (a sequential palette)."""
+    rgb = np.array([ln.color for ax in figure.axes for ln in ax.lines if ln.role == "data"], float).reshape(-1, 4)
+    rows = distinct_rows(rgb)[:, :3] if rgb.shape[0] else rgb[:, :3]
+    return rows.shape[0] >= 3 and looks_sequential(rows)
 
 
 def _one_per_figure(found: list[Hit], noun: str) -> Hit:
@@ -226,7 +234,8 @@ def _under(ps: PointSet, bg: np.ndarray, n: int) -> np.ndarray:
     return out
 
 
-def _marks(ax: Axes, bg: np.ndarray, knobs: Knobs) -> Iterator[_Mark]:
+def _marks(ax: Axes, bg: np.ndarray, knobs: Knobs, ramp: bool = False) -> Iterator[_Mark]:
+    """The data marks of ``ax``; ``ramp``: the figure's lines step along a palette (pale steps are its design)."""
     strict = knobs["strict_wcag"] >= 0.5
     small, big = float(knobs["mark_ratio"]), float(knobs["area_ratio"])
     if strict:
@@ -240,8 +249,8 @@ def _marks(ax: Axes, bg: np.ndarray, knobs: Knobs) -> Iterator[_Mark]:
         if ln.role == "data" and ln.linestyle not in ("", " ", "None", "none"):
             large = ln.linewidth >= knobs["thick_line_width"]
             c = np.asarray([ln.color], float)
-            if not strict and _same_as(c[0], bg):
-                continue  # drawn in the background's own colour: an outline or separator (a ridge plot's edge)
+            if not strict and (ramp or _same_as(c[0], bg)):
+                continue  # a pale step of the palette, or the background's own colour (an outline, a separator)
             yield _Mark("line", public_label(ln.label), c, np.zeros((0, 4)), bg[None, :3], level(large), large,
                         ln.source)
     for ps in ax.points:
@@ -254,6 +263,9 @@ def _marks(ax: Axes, bg: np.ndarray, knobs: Knobs) -> Iterator[_Mark]:
         if not strict and faces.ndim == 2 and faces.shape[0] and faces.shape[1] == 4 \
                 and float(np.nanmax(faces[:, 3])) <= DENSITY_ALPHA:
             continue  # see-through markers show density by design; their faintness is points-hidden's business
+        if not strict and faces.ndim == 2 and faces.shape[0] >= 3 and faces.shape[1] == 4 \
+                and looks_sequential(distinct_rows(faces)[:, :3]):
+            continue  # points coloured along a ramp by an ordered value: its pale steps are the design
         sizes = np.asarray(ps.sizes, float)
         large = bool(sizes.size and np.sqrt(np.nanmin(sizes)) >= knobs["large_mark_size"])
         faces = visible_colors(faces if faces.size else ps.edgecolors, ps.edgecolors)
@@ -314,13 +326,13 @@ def _stands_out_on_marks(m: _Mark, bg: np.ndarray, n: int) -> np.ndarray:
     return out
 
 
-def _mark_hits(ax: Axes, figure: FigureModel, knobs: Knobs) -> Iterator[tuple[float, Hit]]:
+def _mark_hits(ax: Axes, figure: FigureModel, knobs: Knobs, ramp: bool = False) -> Iterator[tuple[float, Hit]]:
     if ax.is_colorbar or not ax.axis_on:
         return
     bg = axes_background(ax, figure)
     strict = knobs["strict_wcag"] >= 0.5
     low: list[tuple[float, str, Source | None, str]] = []
-    for m in _marks(ax, bg, knobs):
+    for m in _marks(ax, bg, knobs, ramp):
         r = _ratios(m.faces, m.under)
         if m.edges.shape[0] in (1, r.size) and r.size:
             r = np.maximum(r, _ratios(m.edges, m.under))
