@@ -82,29 +82,48 @@ class Match:
 # --------------------------------------------------------------------------- SSIM
 
 
+@dataclass(frozen=True, slots=True)
+class _Stats:
+    """One grey image's local statistics under the SSIM window: computed once, compared with many images."""
+
+    x: np.ndarray
+    mean: np.ndarray
+    var: np.ndarray  # population variance
+    ink: np.ndarray  # windows whose local mean is below _INKED (on white = 1)
+
+
+def _blur(img: np.ndarray) -> np.ndarray:
+    from scipy.ndimage import gaussian_filter
+
+    return np.asarray(gaussian_filter(img, sigma=_SIGMA, truncate=_TRUNCATE, mode="reflect"))
+
+
+def _stats(img: np.ndarray) -> _Stats:
+    x = img.astype(np.float64)
+    mean = _blur(x)
+    return _Stats(x=x, mean=mean, var=_blur(x * x) - mean * mean, ink=mean < _INKED)
+
+
+_PAD = int(_TRUNCATE * _SIGMA + 0.5)  # where the window leaves the image: 5 pixels each side
+
+
+def _index(s: _Stats, t: _Stats, data_range: float = 1.0) -> np.ndarray:
+    cxy = _blur(s.x * t.x) - s.mean * t.mean
+    c1, c2 = (_K1 * data_range) ** 2, (_K2 * data_range) ** 2
+    index = ((2 * s.mean * t.mean + c1) * (2 * cxy + c2)) / ((s.mean * s.mean + t.mean * t.mean + c1)
+                                                            * (s.var + t.var + c2))
+    return index[_PAD:-_PAD, _PAD:-_PAD]
+
+
 def ssim_map(a: np.ndarray, b: np.ndarray, data_range: float = 1.0) -> np.ndarray:
     """The local SSIM index of two equal-shape grey images (Wang et al. 2004, Gaussian window σ = 1.5).
 
     Local statistics use the population (not sample) covariance, as the paper does; the border where the
     window leaves the image is cut off (5 pixels each side).
     """
-    from scipy.ndimage import gaussian_filter
-
     if a.shape != b.shape:
         raise ValueError(f"images differ in shape: {a.shape} and {b.shape}")
-    x, y = a.astype(np.float64), b.astype(np.float64)
-
-    def blur(img: np.ndarray) -> np.ndarray:
-        return np.asarray(gaussian_filter(img, sigma=_SIGMA, truncate=_TRUNCATE, mode="reflect"))
-
-    mx, my = blur(x), blur(y)
-    vx = blur(x * x) - mx * mx
-    vy = blur(y * y) - my * my
-    cxy = blur(x * y) - mx * my
-    c1, c2 = (_K1 * data_range) ** 2, (_K2 * data_range) ** 2
-    index = ((2 * mx * my + c1) * (2 * cxy + c2)) / ((mx * mx + my * my + c1) * (vx + vy + c2))
-    pad = int(_TRUNCATE * _SIGMA + 0.5)
-    return index[pad:-pad, pad:-pad]
+    return _index(_stats(a), _stats(b), data_range)
 
 
 def ssim(a: np.ndarray, b: np.ndarray, data_range: float = 1.0) -> float:
@@ -119,32 +138,35 @@ def inked_ssim(a: np.ndarray, b: np.ndarray) -> float:
     plots in one style score 0.6 to 0.75, as high as a JPEG copy of the same plot.  Averaged over the inked
     windows (local mean below 0.97 in either image) they fall below 0.35 while copies stay above 0.85.
     """
-    from scipy.ndimage import gaussian_filter
+    if a.shape != b.shape:
+        raise ValueError(f"images differ in shape: {a.shape} and {b.shape}")
+    return _inked(_stats(a), _stats(b))
 
-    index = ssim_map(a, b)
-    pad = int(_TRUNCATE * _SIGMA + 0.5)
-    ink = np.zeros(a.shape, dtype=bool)
-    for img in (a, b):
-        ink |= np.asarray(gaussian_filter(img.astype(np.float64), sigma=_SIGMA, truncate=_TRUNCATE)) < _INKED
-    ink = ink[pad:-pad, pad:-pad]
+
+def _inked(s: _Stats, t: _Stats) -> float:
+    index = _index(s, t)
+    ink = (s.ink | t.ink)[_PAD:-_PAD, _PAD:-_PAD]
     return float(index[ink].mean()) if ink.any() else 1.0
 
 
-def similarity(reference: Picture, regenerated: Picture, *, align: bool = True) -> float:
+def similarity(reference: Picture, regenerated: Picture, *, align: bool = True,
+               known: dict[int, _Stats] | None = None) -> float:
     """The inked SSIM of two pictures; with ``align``, the best over small cuts of either picture.
 
     A figure cut by a few pixels loses ink only on the sides where its ink reaches the edge of the image, so
     the other picture is cut on those sides by the shares in ``_CROPS``, in every combination for up to two
     sides and one side at a time (two rounds) for more.  Trimming cannot align such a cut on its own.
+    ``known``: the pictures' statistics already computed (by ``id``; :func:`match` keeps them for every pair).
     """
-    best = inked_ssim(reference.grey, regenerated.grey)
+    known = {} if known is None else known
+    whole = {id(p): known.setdefault(id(p), _stats(p.grey)) for p in (reference, regenerated)}
+    best = _inked(whole[id(reference)], whole[id(regenerated)])
     if not align:
         return best
-    for fixed, moved, flip in ((reference, regenerated, False), (regenerated, reference, True)):
+    for fixed, moved in ((reference, regenerated), (regenerated, reference)):
 
-        def score(cut: list[float], fixed: Picture = fixed, moved: Picture = moved, flip: bool = flip) -> float:
-            a, b = fixed.grey, _cropped(moved, cut)
-            return inked_ssim(b, a) if flip else inked_ssim(a, b)
+        def score(cut: list[float], fixed: Picture = fixed, moved: Picture = moved) -> float:
+            return _inked(whole[id(fixed)], _stats(_cropped(moved, cut)))
 
         for cut in _cuts([i for i, touches in enumerate(moved.edges) if touches]):
             best = max(best, score(cut))
@@ -344,15 +366,16 @@ def match(references: Sequence[Picture], regenerated: Sequence[Picture]) -> list
     """Each reference with the regenerated figure it resembles most (ties: the first in order)."""
     found: list[tuple[Picture, int | None, float]] = []
     quick: dict[tuple[int, int], float] = {}
+    known: dict[int, _Stats] = {}  # each picture's statistics, computed once
     for r, ref in enumerate(references):
         # a quick score for every pair, then the alignment search on the few most similar
         for g, reg in enumerate(regenerated):
-            quick[r, g] = similarity(ref, reg, align=False)
+            quick[r, g] = similarity(ref, reg, align=False, known=known)
         order = sorted(range(len(regenerated)), key=lambda g: (-quick[r, g], g))
         best: int | None = None
         score = 0.0
         for g in order[:_SHORTLIST]:
-            s = similarity(ref, regenerated[g])
+            s = similarity(ref, regenerated[g], known=known)
             if best is None or s > score:
                 best, score = g, s
         found.append((ref, best, score))
