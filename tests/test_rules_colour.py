@@ -521,3 +521,15 @@ def test_pale_steps_of_a_ramp_are_the_design() -> None:
     assert run(colour.colours_confusable_cvd, figure(*panels)) == []
     # the same pale yellow alone is a faint line (WCAG 2.1 contrast 1.07:1 on white)
     assert run(colour.low_contrast, figure(axes(lines=[line([0, 1], [0, 1], color=hexrgba("#ffff00"))])))
+
+
+def test_numbers_on_marks_are_held_to_what_seaborn_gives() -> None:
+    # seaborn 0.13.2 (matrix.py, _annotate_heatmap) writes white on cells of relative luminance up to 0.408:
+    # at worst (1 + 0.05) / (0.408 + 0.05) = 2.29:1. White on tab:orange is 2.53:1 (WCAG 2.1 formula), white
+    # on #fdbb6c 1.679:1
+    def on(cell: str) -> Any:
+        return figure(axes(texts=[text("42", "#ffffff", backdrop=hexrgba(cell))]))
+    assert run(colour.low_contrast, on("#ff7f0e")) == []
+    (hit,) = run(colour.low_contrast, on("#fdbb6c"))
+    assert "1.67:1, below 2.29:1 for numbers on marks" in hit.message  # shown truncated, never rounded up
+    assert run(colour.low_contrast, on("#ff7f0e"), strict_wcag=1.0)
