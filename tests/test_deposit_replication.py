@@ -208,3 +208,54 @@ def test_several_deposits_without_a_report_folder_is_one_line(tmp_path, capsys) 
                                                "folder each, and an index)")
     assert main(["check", str(a), "--reference", str(tmp_path / "nowhere")]) == 2
     assert "--reference must be a folder of figure files" in capsys.readouterr().err
+
+
+@pytest.mark.slow
+def test_the_replication_page_opens_offline_and_its_change_view_switches(tmp_path, monkeypatch) -> None:
+    # Chromium from the distribution, driven by selenium, as the visual report's own browser tests do
+    from tests.test_html_report import _no_browser_reason, _open, _requests
+
+    reason = _no_browser_reason()
+    if reason:
+        pytest.skip(reason)
+    from selenium import webdriver
+    from selenium.webdriver.chrome.service import Service
+
+    from tests.test_html_report import CHROMIUM, DRIVER
+
+    monkeypatch.setenv("TMPDIR", str(tmp_path))
+    archive = _zip(tmp_path / "growth-study.zip", {k: v for k, v in DEPOSIT.items()
+                                                   if k in ("growth/fig1_growth.py", "growth/data/growth.csv")})
+    refs = tmp_path / "references"
+    refs.mkdir()
+    _figure_as_submitted(tmp_path / "authors", GROWTH.replace(b"5,0.88", b"5,0.50")).save(refs / "Figure 1.png")
+    site = tmp_path / "site"
+    assert main(["check", str(archive), "--reference", str(refs), "--html", str(site), "--quiet"]) == 1
+    options = webdriver.ChromeOptions()
+    options.binary_location = str(CHROMIUM)
+    for flag in ("--headless=new", "--no-sandbox", "--disable-gpu", "--disable-dev-shm-usage",
+                 "--window-size=1280,1000"):
+        options.add_argument(flag)
+    options.set_capability("goog:loggingPrefs", {"browser": "ALL", "performance": "ALL"})
+    browser = webdriver.Chrome(service=Service(executable_path=str(DRIVER)), options=options)
+    try:
+        _open(browser, site / "index.html")
+        images = browser.execute_script("return Array.from(document.images).map(function(i){return "
+                                        "[i.getAttribute('src'), i.complete, i.naturalWidth];});")
+        assert len(images) >= 5 and all(complete and width > 0 for _, complete, width in images), images
+        urls = _requests(browser)
+        assert urls and all(u.startswith("file://") for u in urls), urls
+        assert [e for e in browser.get_log("browser") if e["level"] in ("SEVERE", "WARNING")] == []
+        box = browser.find_element("css selector", "[data-switch]")
+
+        def visible() -> list[str]:
+            return [i.get_attribute("data-view") for i in box.find_elements("css selector", "img[data-view]")
+                    if i.is_displayed()]
+
+        assert visible() == ["changes"]
+        for view in ("submitted", "regenerated", "changes"):
+            radio = box.find_element("css selector", f"input[value='{view}']")
+            browser.execute_script("arguments[0].scrollIntoView(); arguments[0].click();", radio)
+            assert visible() == [view]
+    finally:
+        browser.quit()
