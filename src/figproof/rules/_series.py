@@ -265,9 +265,17 @@ def _keyed_by_colour(ax: Axes, artists: list[_Artist]) -> list[_Artist]:
                 out.append(_Artist(np.asarray(keep), art.label, art.what, art.source, art.span, style=art.style))
             continue
         out.append(art)
+    out = _without_bands(out)
     if ax.legend_labels:
         return out
     return _without_redundant(ax, out)
+
+
+def _without_bands(artists: list[_Artist]) -> list[_Artist]:
+    """Filled areas in the colour of a line or point set are its error band, not a series of their own."""
+    drawn = [row for a in artists if a.what in ("line", "points") for row in a.colors]
+    return [a for a in artists if a.what != "area" or not drawn
+            or not all(any(_same_color(row, c) for c in drawn) for row in a.colors)]
 
 
 def _without_redundant(ax: Axes, artists: list[_Artist]) -> list[_Artist]:
