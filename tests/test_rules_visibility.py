@@ -122,11 +122,11 @@ def test_a_few_overlaps_raise_nothing() -> None:
     assert hits(ax_of(points_px(px, py))) == []
 
 
-def test_a_quarter_hidden_is_a_warning() -> None:
-    px, py = _pairs(15, 70, 1.0)  # 30 of 100, 1 px apart: under half the 3 px radius
+def test_four_in_ten_hidden_is_a_warning() -> None:
+    px, py = _pairs(22, 56, 1.0)  # 44 of 100, 1 px apart: under half the 3 px radius
     (hit,) = hits(ax_of(points_px(px, py)))
     assert hit.severity is None and hit.confidence == "certain"
-    assert hit.message == ("30 of 100 markers (30%) sit almost on top of a neighbour (centres closer than half "
+    assert hit.message == ("44 of 100 markers (44%) sit almost on top of a neighbour (centres closer than half "
                            "the marker radius, 1.5 px), so readers cannot count them")
 
 
@@ -143,10 +143,12 @@ def test_half_hidden_is_an_error() -> None:
     assert hit.severity == "error" and hit.message.startswith("60 of 100 markers (60%)")
 
 
-def test_ten_percent_duplicates_is_an_error() -> None:
-    px, py = _pairs(6, 88, 0.0)  # 12 of 100 sit exactly on another marker
+def test_a_quarter_duplicates_is_an_error() -> None:
+    px, py = _pairs(13, 74, 0.0)  # 26 of 100 sit exactly on another marker
     (hit,) = hits(ax_of(points_px(px, py)))
-    assert hit.severity == "error" and "12 of them drawn on exactly the same spot" in hit.message
+    assert hit.severity == "error" and "26 of them drawn on exactly the same spot" in hit.message
+    # a few exact ties (values measured to 0.1 mm) leave the rest of the cloud countable
+    assert hits(ax_of(points_px(*_pairs(6, 88, 0.0)))) == []
 
 
 def test_larger_markers_or_dpi_hide_more() -> None:
@@ -249,7 +251,7 @@ def test_faint_markers_that_pile_up_are_not_faint() -> None:
 
 
 def test_problems_of_one_axes_are_one_finding() -> None:
-    px, py = _pairs(15, 70, 1.0)  # 30 of 100 overlap
+    px, py = _pairs(22, 56, 1.0)  # 44 of 100 overlap
     faint = points_px([100.0, 900.0], [100.0, 900.0], face=(1, 1, 1, 1))
     (hit,) = points_hidden.check(figure(ax_of(points_px(px, py), faint), dpi=72.0), points_hidden.defaults())
     assert len(hit.details) == 2 and "1 more problem" in hit.message

@@ -19,9 +19,9 @@ from figproof.model.records import Axes, FigureModel, PointSet
 from figproof.rules.base import Knob, Knobs, counted, rule
 from figproof.science.colour import blend_over, delta_e
 
-HIDDEN_WARNING = 0.25
-HIDDEN_ERROR = 0.5
-DUPLICATE_ERROR = 0.10
+HIDDEN_WARNING = 0.4
+HIDDEN_ERROR = 0.6
+DUPLICATE_ERROR = 0.25
 DUPLICATE_PX = 0.5
 COVERED_ERROR = 0.05
 OPAQUE_ALPHA = 0.9
@@ -264,7 +264,7 @@ def _faint(ps: PointSet, keep: np.ndarray, background: np.ndarray, limit: float)
         "matplotlib documentation, Artist.set_zorder: artists with higher zorder are drawn on top; equal "
         "zorders are drawn in the order the artists were added.",
         "Luo, Cui & Li (2006), CAM02-UCS: colour difference of a marker blended over the background.",
-        "Common practice: one observation per visible marker; 25% / 50% hidden and 10% duplicates as "
+        "Common practice: one observation per visible marker; 40% / 60% hidden and 25% duplicates as "
         "warning / error levels, half a radius between centres, opacity 0.6 and a 90% opaque stack are this "
         "project's choice; the overlap of two equal discs is the circle-circle intersection area.",
     ),
