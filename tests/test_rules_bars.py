@@ -77,6 +77,16 @@ def test_seaborn_barplot_is_an_estimate() -> None:
     assert hit.confidence == "likely" and "seaborn" in hit.message
 
 
+def test_seaborn_bars_of_one_value_each_are_those_values() -> None:
+    # seaborn's barplot of one row per category (a rate per state): the mean of one value is that value
+    rates = [18.8, 18.1, 18.6]
+    samples = tuple(b.Sample(values=np.array([r]), origin="seaborn-estimate") for r in rates)
+    assert hits(b.figure(b.axes(bars=[b.bars(rates, origin="seaborn")]), samples=samples)) == []
+    # one group of several values among them: a summary again
+    mixed = (*samples[:2], b.Sample(values=np.array([17.9, 19.3]), origin="seaborn-estimate"))
+    assert hits(b.figure(b.axes(bars=[b.bars(rates, origin="seaborn")]), samples=mixed))
+
+
 def test_grouped_bars_are_one_finding() -> None:
     """Bars drawn as one set per group (a hue level) are one chart: one finding counting all bars."""
     first, second = [4.21, 5.13], [3.87, 6.02]

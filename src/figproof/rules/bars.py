@@ -167,8 +167,20 @@ def bars_for_continuous(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
             continue
         # one finding per axes: grouped bars (one set per hue level) are one chart to the reader
         summaries = [b for b in ax.bars if _may_summarise(ax, b)]
-        if summaries:
+        if summaries and not _one_value_each(figure, summaries):
             yield _judge(figure, ax, summaries, knobs)
+
+
+def _one_value_each(figure: FigureModel, sets: list[BarSet]) -> bool:
+    """seaborn bars whose every group held a single value: each bar is that value, not a summary of several."""
+    if not all(b.origin == "seaborn" for b in sets):
+        return False
+    singles = np.array([float(s.values[0]) for s in figure.samples
+                        if s.origin == "seaborn-estimate" and s.values.size == 1 and np.isfinite(s.values[0])])
+    if singles.size == 0:
+        return False
+    heights = np.concatenate([b.heights[np.isfinite(b.heights)] for b in sets])
+    return bool(all(np.isclose(singles, h, rtol=1e-9, atol=1e-12).any() for h in heights))
 
 
 def _may_summarise(ax: Axes, bars: BarSet) -> bool:
