@@ -253,7 +253,8 @@ def _where(name: str, code: int, axis: Axis) -> str:
         every plotted value. If an outlier must stay off-scale, say so in the figure (an arrow with its value,
         or a broken axis) and in the caption, and accept the finding with an allow comment that gives the
         reason. On a log axis, drop or report values <= 0 explicitly instead of letting the scale hide them.
-        Cutting a line plot to a window of its x-range is a legitimate choice; accept it with an allow comment.
+        A line series cut only along its x-axis (a window of a long recording) is a chosen zoom and is not
+        reported.
     """,
     sources=(
         "matplotlib documentation, Axes.set_xlim / Axes.set_ylim: artists outside the view limits are clipped "
@@ -352,11 +353,11 @@ def axis_clips_data(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
             severity: Severity | None = None
             confidence: Confidence | None = None
             if fam.monotonic_x:
-                # a line series cut only along x is usually a chosen window, not hidden data
+                # a line series cut only along x is a chosen window of a long signal, not hidden data
                 cut_marks = set(fam.mark[cut].tolist())
                 x_only = not (cut & (sy != 0)).any()
                 if x_only and all(fam.monotonic_x[m] for m in cut_marks):
-                    severity, confidence = "warning", "possible"
+                    continue
             (name, code), _ = ranked[0]
             cause = (ax.x if name == "x" else ax.y).limit_source if code != _UNSHOWN else None
             yield Hit(message=message, source=fam.sources[first], axes=ax.index, severity=severity,
