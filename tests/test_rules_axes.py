@@ -313,3 +313,14 @@ def test_bars_whose_baseline_is_cut_off_are_found() -> None:
     assert clips(axes(xlim=(-1, 2), ylim=(0, 700), bars=[bars([480.0, 615.0])])) == []
     # on a log axis the baseline 0 cannot be drawn at all: not a finding
     assert clips(axes(xlim=(-1, 2), ylim=(1, 1000), yscale="log", bars=[bars([48.0, 615.0])])) == []
+
+
+def test_limits_the_script_set_alike_on_several_panels_are_one_scale() -> None:
+    # g.set(ylim=(0, 25)) on a grid: each panel keeps the common scale, so the empty part is the point
+    def panel(index: int, autoscaled: bool = False) -> Axes:
+        pts = points(np.zeros(3), [1.6, 5.0, 10.0], ylim=(0, 25))
+        return axes_with(Axis(), Axis(lim=(0.0, 25.0), autoscaled=autoscaled), index=index, points=[pts])
+    assert empty(panel(0), panel(1)) == []
+    # set on one panel only, or the other panel's limits chosen by matplotlib: judged on its own
+    assert empty(panel(0))
+    assert empty(panel(0), panel(1, autoscaled=True))

@@ -500,6 +500,19 @@ def _bounded_scale(lo: float, hi: float, values: np.ndarray) -> bool:
     return whole and hi - lo <= 11.0 and lo >= -1.0
 
 
+def _same_limits_set_elsewhere(figure: FigureModel, ax: Axes, which: str, axis: Axis) -> bool:
+    """The script set these very limits on another panel too (``g.set(xlim=...)`` on a grid): one scale for all."""
+    if axis.autoscaled:
+        return False
+    for other in figure.axes:
+        if other is ax or other.is_colorbar:
+            continue
+        theirs = other.x if which == "x" else other.y
+        if not theirs.autoscaled and np.allclose(theirs.lim, axis.lim, rtol=1e-9, atol=0.0):
+            return True
+    return False
+
+
 @rule(
     "axis-empty-span",
     severity="warning",
@@ -588,7 +601,7 @@ def axis_empty_span(figure: FigureModel, knobs: Knobs) -> Iterator[Hit]:
         lims = _limits(axis)
         if lims is None or axis.categorical or axis.scale not in _FRACTION_SCALES:
             continue
-        if axis.shared:
+        if axis.shared or _same_limits_set_elsewhere(figure, ax, which, axis):
             continue  # the limits are shared with sibling panels, so they can be compared: the space is theirs
         if not axis.autoscaled and _bounded_scale(lims[0], lims[1], _values(ax, which)):
             continue  # the script showed the whole of a bounded scale on purpose
