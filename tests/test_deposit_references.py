@@ -212,3 +212,19 @@ def test_a_moved_point_is_outlined_where_matplotlib_put_it_in_both_figures(tmp_p
     assert not any(x0 <= x <= x1 and y0 <= y <= y1 for x0, y0, x1, y1 in change.regions for x, y in now[:3])
     with Image.open(tmp_path / "view.png") as view:
         assert view.width == page.width  # the product's change view of the regenerated figure, caption below
+
+
+def test_a_bar_chart_of_other_data_is_not_reproduced_though_ssim_alone_would_say_so() -> None:
+    from figproof.deposit.references import REPRODUCED, changed_share, similarity
+
+    regenerated = [picture("doses.py#1", _img(_draw("doses"))), picture("growth.py#1", _img(_draw("growth")))]
+    # five bars of other heights in the same style, drawn at print resolution (seed 27: invented data whose
+    # grey 128-px SSIM with the regenerated bars is above the threshold)
+    other = picture("Figure 2.png", _img(_draw("doses", seed=27, dpi=300)))
+    copy = picture("Figure 2 (q30).jpg", _jpeg(_img(_draw("doses")), 30))
+    assert similarity(other, regenerated[0]) >= REPRODUCED  # SSIM alone would call it reproduced
+    assert changed_share(copy, regenerated[0]) < 0.025 < changed_share(other, regenerated[0])
+    (m,) = match([other], regenerated)
+    assert (m.verdict, m.regenerated) == ("differs", "doses.py#1")
+    (m,) = match([copy], regenerated)
+    assert (m.verdict, m.regenerated) == ("reproduced", "doses.py#1")

@@ -110,7 +110,8 @@ def _references(rep: Replication) -> str:
     parts = ['<section class="loose" id="references"><h2>Figures as submitted</h2>']
     if rep.matches:
         parts.append("<p>Similarity is the structural similarity (SSIM) of the two figures in grey after trimming "
-                     "margins and scaling to a common size: 0.80 or more counts as reproduced.</p>")
+                     "margins and scaling to a common size: 0.80 or more counts as reproduced "
+                     "when, laid over the regenerated figure, no more than 2.5 % of its pixels differ.</p>")
     for n, m in enumerate(rep.matches):
         badge, word = _VERDICT[m.verdict]
         closest = (f"closest regenerated figure <code>{_e(m.regenerated)}</code>, similarity {m.similarity:.2f}"

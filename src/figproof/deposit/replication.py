@@ -179,7 +179,8 @@ def _references(rep: Replication) -> list[str]:
             lines.append(f"| `{_cell(m.reference)}` | {_VERDICT_WORDS[m.verdict]} | {closest} | "
                          f"{m.similarity:.2f} | {view} |")
         lines += ["", "Similarity is the structural similarity (SSIM) of the two figures in grey after trimming "
-                      "margins and scaling to a common size: 0.80 or more counts as reproduced.", ""]
+                      "margins and scaling to a common size: 0.80 or more counts as reproduced "
+                      "when, laid over the regenerated figure, no more than 2.5 % of its pixels differ.", ""]
     lines += [f"- {_cell(p)}" for p in rep.reference_problems]
     if rep.reference_problems:
         lines.append("")
