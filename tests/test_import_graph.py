@@ -264,3 +264,16 @@ def test_the_visual_report_files_a_helper_finding_under_the_script_that_ran() ->
     assert 'data-script="fig_growth.py"' in html._attrs(f)
     options = html._filters(result)
     assert '<option value="fig_growth.py">' in options and "lab/plots.py" not in options
+
+
+def test_a_notebook_run_from_its_folder_still_depends_on_the_repo_package_it_imports(tmp_path: Path) -> None:
+    # run from notebooks/, `lab` is found through an editable install rather than sys.path; its edits must
+    # still re-run the notebook, so the result cache counts it among the notebook's inputs
+    from figproof.run.cache import script_imports
+    from figproof.run.execute import Task
+
+    put(tmp_path, "lab/__init__.py")
+    put(tmp_path, "lab/plots.py", HELPER)
+    notebook(tmp_path, "notebooks/summary.ipynb", "from lab.plots import bar", "bar([1, 2], 'summary.png')")
+    found = script_imports(tmp_path, Task(script="notebooks/summary.ipynb", working_dir="script"))
+    assert {"lab/__init__.py", "lab/plots.py"} <= set(found.files)

@@ -65,7 +65,7 @@ from pathlib import Path, PurePosixPath
 from typing import Any, Literal
 
 from figproof import __version__
-from figproof.discover.imports import local_imports, search_folders
+from figproof.discover.imports import LocalImports, local_imports, search_folders
 from figproof.hashing import file_sha256
 from figproof.model.context import files_written
 from figproof.model.records import ScriptRun, dump_run, load_run
@@ -320,10 +320,7 @@ class CachingRunner:
                 return run
             notes.append(f"result cache entry {_shown(entry, root)} was unreadable; ran the script and replaced it")
         # decided before the run, so an edit made while it runs cannot be stored against the old result
-        # sys.path[0] is how figproof itself was started (its bin folder, or the cwd under -m), not the child's
-        search = search_folders(root, task.script, task.working_dir, sys.path[1:])
-        cwd = root if task.working_dir == "root" else (root / task.script).parent
-        imports = local_imports(root, task.script, search, bases=(cwd,))
+        imports = script_imports(root, task)
         before = {p: self._hasher.sha256(root / p) for p in imports.files}
         run = self.inner().run(task, options)
         if script_sha is None or not cacheable(run):
@@ -476,6 +473,20 @@ def _recorded_keys(cache_dir: Path) -> Iterator[dict[str, Any]]:
 def _key_files(key: Mapping[str, Any]) -> list[str]:
     """The repo files a cache key records as the script's inputs (read, or imported repo modules)."""
     return [str(f["path"]) for f in key.get("files", ())]
+
+
+def script_imports(root: Path, task: Task) -> LocalImports:
+    """The repo modules a run of ``task`` may import, for its cache key: more is safe, fewer is a stale result.
+
+    Besides the folders the child puts on ``sys.path`` (and figproof's own further entries: ``sys.path[0]`` is
+    how figproof itself was started, not the child's), the repo root and a ``src/`` folder are searched: an
+    editable install of the repo's own package imports from there without a ``sys.path`` entry.
+    """
+    root = root.resolve()
+    extra = [*sys.path[1:], str(root), *([str(root / "src")] if (root / "src").is_dir() else [])]
+    search = search_folders(root, task.script, task.working_dir, extra)
+    cwd = root if task.working_dir == "root" else (root / task.script).parent
+    return local_imports(root, task.script, search, bases=(cwd,))
 
 
 def recorded_dependencies(cache_dir: Path) -> dict[str, set[str]]:
