@@ -28,6 +28,7 @@ HEAD = ("import glob, os, pathlib, socket, tempfile, urllib.request\n"
 SCRIPTS = {
     "tmp_read.py": "open(TMP_FILE).read()",
     "home_read.py": "open(HOME_FILE).read()",
+    "run_folder.py": "open('../spec.json').read()",  # figproof's run folder, beside the copy the script runs on
     "analysis/tilde_open.py": "open('~/Desktop/figproof-absent-plates.csv').read()",
     "tilde_pandas.py": "import pandas as pd; pd.read_csv(HOME_TILDE)",
     "link_abs.py": "open('data/abs_link.csv').read()",
@@ -99,6 +100,11 @@ def test_a_file_in_the_system_temp_folder_is_an_input_outside_the_repo(checked: 
     f = _one(checked, "tmp_read.py", "input-outside-repo")
     assert f.line == 3 and f.severity == "error"
     assert str(checked.tmp_file) in f.message and "(it does not exist here)" not in f.message
+
+
+def test_a_file_in_the_run_folder_beside_the_copy_is_an_input_outside_the_repo(checked: Checked) -> None:
+    f = _one(checked, "run_folder.py", "input-outside-repo")
+    assert f.line == 3 and "../spec.json" in f.message and "outside the repo" in f.message
 
 
 def test_a_file_the_script_wrote_into_its_own_temp_folder_is_not_an_input(checked: Checked) -> None:
