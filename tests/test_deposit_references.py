@@ -228,3 +228,18 @@ def test_a_bar_chart_of_other_data_is_not_reproduced_though_ssim_alone_would_say
     assert (m.verdict, m.regenerated) == ("differs", "doses.py#1")
     (m,) = match([copy], regenerated)
     assert (m.verdict, m.regenerated) == ("reproduced", "doses.py#1")
+
+
+def test_a_figure_cut_by_its_own_canvas_and_cropped_when_submitted_is_still_reproduced() -> None:
+    from figproof.deposit.references import MAX_CHANGED, changed_share
+
+    # seed 28 (invented data) makes tick labels wide enough to run off the canvas at 100 dpi: the regenerated
+    # figure's ink reaches the left and bottom edges; the submitted copy was drawn at 300 dpi, cropped by
+    # 3 pixels and JPEG-compressed, as a journal returns it
+    regenerated = picture("growth.py#1", _img(_draw("growth", seed=28)))
+    big = _img(_draw("growth", seed=28, dpi=300)).convert("RGB")
+    submitted = picture("Figure 1.jpg", _jpeg(big.crop((3, 3, big.width - 3, big.height - 3)), 40))
+    assert regenerated.edges[0] and regenerated.edges[3]
+    assert changed_share(submitted, regenerated) <= MAX_CHANGED
+    (m,) = match([submitted], [regenerated, picture("doses.py#1", _img(_draw("doses")))])
+    assert (m.verdict, m.regenerated) == ("reproduced", "growth.py#1")

@@ -425,22 +425,48 @@ MAX_CHANGED = 0.025
 
 def changed_share(reference: Picture, regenerated: Picture) -> float:
     """The share of pixels of the regenerated figure (trimmed) that differ from the reference laid over it,
-    as the change view counts them (:data:`VIEW_BLUR`, :data:`VIEW_TOLERANCE`)."""
+    as the change view counts them (:data:`VIEW_BLUR`, :data:`VIEW_TOLERANCE`).
+
+    Where either figure's ink reaches the edge of its image (a figure cut by its own canvas, or by a few pixels
+    more when it was submitted), the two are aligned as :func:`similarity` aligns them: the least share over
+    small cuts of either on those sides.
+    """
     from figproof.report.change_view import changed_mask
 
-    page = over_white(regenerated.shown)
-    before = placed(reference, page)
-    return float(changed_mask(np.asarray(before), np.asarray(page), VIEW_TOLERANCE, VIEW_BLUR).mean())
+    def share(shown: Image.Image, page: Image.Image) -> float:
+        page = over_white(page)
+        before = _placed(shown, page)
+        return float(changed_mask(np.asarray(before), np.asarray(page), VIEW_TOLERANCE, VIEW_BLUR).mean())
+
+    best = share(reference.shown, regenerated.shown)
+    if best <= MAX_CHANGED:
+        return best
+    for cut in _cuts([i for i, touches in enumerate(reference.edges) if touches]):
+        best = min(best, share(_crop(reference.shown, cut), regenerated.shown))
+    for cut in _cuts([i for i, touches in enumerate(regenerated.edges) if touches]):
+        best = min(best, share(reference.shown, _crop(regenerated.shown, cut)))
+    return best
+
+
+def _crop(img: Image.Image, shares: Sequence[float]) -> Image.Image:
+    w, h = img.size
+    left, top, right, bottom = (round(s * (w if i % 2 == 0 else h)) for i, s in enumerate(shares))
+    if w - left - right < 8 or h - top - bottom < 8:
+        return img
+    return img.crop((left, top, w - right, h - bottom))
 
 
 def placed(reference: Picture, page: Image.Image) -> Image.Image:
     """The reference as submitted, set on the regenerated figure's page: its trimmed figure scaled into the box
     the regenerated figure's ink fills, on white, so that the two can be laid over each other pixel for pixel."""
-    page = over_white(page)
+    return _placed(reference.shown, over_white(page))
+
+
+def _placed(shown: Image.Image, page: Image.Image) -> Image.Image:
     box = ink_box(page) or (0, 0, page.width, page.height)
     out = Image.new("RGB", page.size, (255, 255, 255))
     size = (max(1, box[2] - box[0]), max(1, box[3] - box[1]))
-    out.paste(reference.shown.convert("RGB").resize(size, Image.Resampling.LANCZOS), box[:2])
+    out.paste(shown.convert("RGB").resize(size, Image.Resampling.LANCZOS), box[:2])
     return out
 
 
