@@ -523,13 +523,13 @@ def test_pale_steps_of_a_ramp_are_the_design() -> None:
     assert run(colour.low_contrast, figure(axes(lines=[line([0, 1], [0, 1], color=hexrgba("#ffff00"))])))
 
 
-def test_numbers_on_marks_are_held_to_what_seaborn_gives() -> None:
-    # seaborn 0.13.2 (matrix.py, _annotate_heatmap) writes white on cells of relative luminance up to 0.408:
-    # at worst (1 + 0.05) / (0.408 + 0.05) = 2.29:1. White on tab:orange is 2.53:1 (WCAG 2.1 formula), white
-    # on #fdbb6c 1.679:1
+def test_numbers_on_marks_are_held_to_wcag_large_text() -> None:
+    # WCAG 2.1 SC 1.4.3: 3:1 for large text. White on tab:orange is 2.53:1 (WCAG 2.1 formula); white on
+    # #1f77b4 is 4.6:1. seaborn 0.13.2 (matrix.py, _annotate_heatmap) writes white on cells of relative
+    # luminance up to 0.408, as low as 2.29:1: such cells are reported
     def on(cell: str) -> Any:
         return figure(axes(texts=[text("42", "#ffffff", backdrop=hexrgba(cell))]))
-    assert run(colour.low_contrast, on("#ff7f0e")) == []
-    (hit,) = run(colour.low_contrast, on("#fdbb6c"))
-    assert "1.67:1, below 2.29:1 for numbers on marks" in hit.message  # shown truncated, never rounded up
-    assert run(colour.low_contrast, on("#ff7f0e"), strict_wcag=1.0)
+    (hit,) = run(colour.low_contrast, on("#ff7f0e"))
+    assert "2.53:1, below 3:1 for text on marks" in hit.message
+    assert run(colour.low_contrast, on("#1f77b4")) == []
+    assert run(colour.low_contrast, on("#ff7f0e"), mark_text_ratio=2.5) == []
