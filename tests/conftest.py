@@ -23,6 +23,19 @@ HINT = (f"figproof's tests need the project installed in this Python (missing: {
 collect_ignore_glob = ["test_*.py"] if MISSING else []
 
 
+@pytest.hookimpl(tryfirst=True)
+def pytest_cmdline_main(config: Any) -> None:
+    """With pytest-xdist installed (the test extra), the suite runs on two processes, each test file whole on one
+    of them so its module fixtures are built once: most tests wait on a child process, and one pytest process
+    leaves a core idle.  ``-n N`` chooses otherwise, ``-n 0`` runs in one process; without xdist, one process."""
+    if hasattr(config, "workerinput") or not config.pluginmanager.has_plugin("xdist"):
+        return
+    if config.option.numprocesses is None and not config.option.usepdb and (os.cpu_count() or 1) > 1:
+        config.option.numprocesses = 2
+        if config.option.dist == "no":
+            config.option.dist = "loadfile"
+
+
 def pytest_report_header(config: Any) -> str | None:
     return HINT if MISSING else None
 
