@@ -60,10 +60,12 @@ def test_one_missing_package_is_one_finding_naming_its_scripts_and_the_failures_
     ]
     assert env[0].severity == "error" and [i.path for i in env[0].instances] == [
         "figures/fig1.py", "figures/fig2.py", "figures/fig3.py"]
+    # the failures one cause explains are one note too, naming where each script stopped
     notes = [f for f in found if f.rule == "script-fails"]
-    assert len(notes) == 4 and all(f.severity == "note" for f in notes)
-    assert notes[0].message == ("figures/fig1.py stops at line 5 because the package 'labtools_absent' "
-                                "is not installed (reported by environment-mismatch)")
+    assert len(notes) == 2 and all(f.severity == "note" for f in notes)
+    assert notes[0].message.startswith("figures/fig1.py stops at line 5 because the package 'labtools_absent' "
+                                       "is not installed (reported by environment-mismatch) (3 scripts: ")
+    assert [(i.path, i.line) for i in notes[0].instances] == [(f"figures/fig{k}.py", 5) for k in (1, 2, 3)]
 
 
 def test_a_missing_reader_of_eight_scripts_says_install_it_to_read_their_inputs() -> None:
@@ -142,6 +144,7 @@ def test_python2_notebooks_and_scripts_in_a_repo_are_one_finding(tmp_path) -> No
     (env,) = [f for f in found if f["rule"] == "environment-mismatch"]
     assert env["message"] == ("2 scripts are Python 2 code, which Python 3 cannot run; run them with Python 2.7 or "
                               "port them to Python 3 (doses.py and growth.ipynb)")
-    notes = {(f["path"], f.get("cell"), f.get("line")) for f in found if f["rule"] == "script-fails"}
+    notes = {(i["path"], i.get("cell"), i.get("line")) for f in found if f["rule"] == "script-fails"
+             for i in f["instances"]}
     assert notes == {("doses.py", None, 4), ("growth.ipynb", 3, 3)}  # the markdown cell counts: code cell 3
     assert all(f["severity"] == "note" for f in found if f["rule"] == "script-fails")

@@ -105,7 +105,7 @@ def script_fails(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator[
     if ev is not None:
         rule_id = "input-missing" if ev.inside_repo else "input-outside-repo"
         yield Hit(message=f"{run.path} stops{at} because {ev.path} is missing (reported by {rule_id})",
-                  source=source, severity="note", key=f"{err.kind}:missing-input")
+                  source=source, severity="note", key=f"{err.kind}:missing-input", group=f"stops:missing:{ev.path}")
         return
     if _refused_network(run):
         yield Hit(message=f"{run.path} stops{at} because network access is off during a check (reported by "
@@ -113,8 +113,10 @@ def script_fails(run: ScriptRun, context: RunContext, knobs: Knobs) -> Iterator[
         return
     cause = repo_cause(run)
     if cause is not None:
+        # the scripts one cause stops are one note, as the cause is one finding
         yield Hit(message=f"{run.path} stops{at} because {reason(*cause)} (reported by environment-mismatch)",
-                  source=source, severity="note", key=f"{err.kind}:environment")
+                  source=source, severity="note", key=f"{err.kind}:environment",
+                  group=f"stops:environment:{reason(*cause)}")
         return
     if err.kind == "exception":
         what = f"raised {err.type}: {err.message}" if err.message else f"raised {err.type}"
