@@ -533,3 +533,13 @@ def test_numbers_on_marks_are_held_to_wcag_large_text() -> None:
     assert "2.53:1, below 3:1 for text on marks" in hit.message
     assert run(colour.low_contrast, on("#1f77b4")) == []
     assert run(colour.low_contrast, on("#ff7f0e"), mark_text_ratio=2.5) == []
+
+
+def test_empty_legend_handle_lines_draw_nothing() -> None:
+    # seaborn adds point-less lines as legend handles (here a grey one for a size level): they draw nothing,
+    # so they neither break a palette's ramp nor count as a colour to tell apart
+    ramp = [tuple(c) for c in matplotlib.colormaps["Blues"](np.linspace(0.1, 1.0, 4))]
+    drawn = [line([0, 1], [0, 1], color=c, label=f"dose {k}") for k, c in enumerate(ramp)]
+    handle = line([], [], color=hexrgba("#333333"), label="T1")
+    fig = figure(axes(lines=[*drawn, handle]))
+    assert run(colour.low_contrast, fig) == [] and run(colour.colours_confusable_cvd, fig) == []

@@ -228,7 +228,8 @@ def _artists(ax: Axes, palette_max_colors: float, max_colors: float) -> list[_Ar
         if ps.colormap is None and ps.x.size:
             add(visible_colors(ps.facecolors, ps.edgecolors), public_label(ps.label), "points", ps.source)
     for ln in ax.lines:
-        if ln.role == "data" and ln.linestyle not in ("", " ", "None", "none"):
+        # a line without points draws nothing (seaborn adds such lines as legend handles)
+        if ln.role == "data" and ln.x.size and ln.linestyle not in ("", " ", "None", "none"):
             add(np.asarray([ln.color], float), public_label(ln.label), "line", ln.source,
                 style=(_dash(ln.linestyle), ln.marker, "", float(ln.linewidth)))
     for bs in ax.bars:

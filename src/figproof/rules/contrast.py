@@ -170,7 +170,8 @@ _NOUNS = {"mark": ("mark", "marks"), "text": ("group of texts", "groups of texts
 
 def _lines_on_a_ramp(figure: FigureModel) -> bool:
     """The figure's data lines take three or more colours along one lightness ramp (a sequential palette)."""
-    rgb = np.array([ln.color for ax in figure.axes for ln in ax.lines if ln.role == "data"], float).reshape(-1, 4)
+    rgb = np.array([ln.color for ax in figure.axes for ln in ax.lines if ln.role == "data" and ln.x.size],
+                   float).reshape(-1, 4)
     rows = distinct_rows(rgb)[:, :3] if rgb.shape[0] else rgb[:, :3]
     return rows.shape[0] >= 3 and looks_sequential(rows)
 
@@ -259,7 +260,7 @@ def _marks(ax: Axes, bg: np.ndarray, knobs: Knobs, ramp: bool = False) -> Iterat
         return big if large else small
 
     for ln in ax.lines:
-        if ln.role == "data" and ln.linestyle not in ("", " ", "None", "none"):
+        if ln.role == "data" and ln.x.size and ln.linestyle not in ("", " ", "None", "none"):
             large = ln.linewidth >= knobs["thick_line_width"]
             c = np.asarray([ln.color], float)
             if not strict and (ramp or _same_as(c[0], bg)):
