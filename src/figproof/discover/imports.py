@@ -287,11 +287,7 @@ def local_imports(root: Path, script: str, folders: Sequence[Path], *, bases: Se
     while queue and len(files) < MAX_MODULES:
         current = queue.pop()
         imported, added = reader.read(current)
-        for expr in added:
-            for named in _folder_of(expr, current, bases):
-                folder = _resolved(named)
-                if folder is not None and _inside(folder, root) and folder.is_dir() and folder not in folders:
-                    folders.append(folder)
+        _add_folders(folders, added, current, bases, root)
         hits, missing = reader.resolve(current, imported, tuple(folders), root)
         absent.update(missing)
         for hit, rel in hits:
@@ -301,6 +297,16 @@ def local_imports(root: Path, script: str, folders: Sequence[Path], *, bases: Se
                 queue.append(hit)
     files.discard(_rel(start, root) if _inside(start, root) else script)
     return LocalImports(files=tuple(sorted(files)), absent=tuple(sorted(absent)))
+
+
+def _add_folders(folders: list[Path], added: list[ast.expr], current: Path, bases: tuple[Path, ...],
+                 root: Path) -> None:
+    """Append the repo folders that a file's literal ``sys.path`` entries name (in place, each once)."""
+    for expr in added:
+        for named in _folder_of(expr, current, bases):
+            folder = _resolved(named)
+            if folder is not None and _inside(folder, root) and folder.is_dir() and folder not in folders:
+                folders.append(folder)
 
 
 def _discovery_search(root: Path, script: str) -> tuple[list[Path], tuple[Path, ...]]:
@@ -334,11 +340,7 @@ def import_edges(root: Path, scripts: Sequence[str]) -> dict[str, tuple[str, ...
             if rel in edges:
                 continue
             imported, added = reader.read(current)
-            for expr in added:
-                for named in _folder_of(expr, current, bases):
-                    folder = _resolved(named)
-                    if folder is not None and _inside(folder, root) and folder.is_dir() and folder not in folders:
-                        folders.append(folder)
+            _add_folders(folders, added, current, bases, root)
             hits, _ = reader.resolve(current, imported, tuple(folders), root)
             edges[rel] = tuple(dict.fromkeys(r for _, r in hits if r != rel))
             queue += [(r, p) for p, r in hits if r not in edges]
