@@ -16,10 +16,13 @@ import threading
 from pathlib import Path
 from typing import Any
 
+# imported once in the server, so no child pays for them: the plotting stack, and every module of the child's
+# own (the write guard, the kernel layer and the repo view among them: importing them costs about 10 ms per
+# script otherwise; importing installs nothing, the child does that for itself)
 PRELOAD = ("numpy", "pandas", "matplotlib", "matplotlib.pyplot", "matplotlib.backends.backend_agg", "PIL.Image",
            "PIL.PngImagePlugin", "figproof.child.capture", "figproof.child.extract", "figproof.model.records",
-           "figproof.child.main",
-           "nbformat", "resource", "runpy", "pkgutil")
+           "figproof.child.main", "figproof.child.audit", "figproof.child.landlock", "figproof.child.backdrop",
+           "figproof.child.view", "tempfile", "ctypes", "nbformat", "resource", "runpy", "pkgutil")
 
 
 def _threads() -> int:
