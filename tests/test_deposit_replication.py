@@ -167,6 +167,8 @@ def test_a_figure_that_differs_gets_the_change_view_in_markdown_json_and_html(tm
     # the issue-15 change view and its switch: what changed, the figure as submitted, the regenerated figure
     assert text.count("<div class=\"drift\" data-switch>") == 1 and text.count('data-view="') == 3
     assert "We could not reproduce Figure 1.png." in text
+    # the layers in force for the deposit's scripts, as the markdown summary names them
+    assert "isolation: " in text and "Python write guard (audit hooks)" in text and "time limit" in text
     assert not list(temp.iterdir())
 
 

@@ -95,6 +95,10 @@ def test_page_is_valid_html5_and_self_contained(demo_report: Path) -> None:
     page = demo_report / "html" / "index.html"
     text = page.read_text(encoding="utf-8")
     html5lib.HTMLParser(strict=True).parse(text)  # raises on any parse error
+    # the header names the isolation layers that were in force, as the markdown summary does
+    summary = (demo_report / "summary.md").read_text(encoding="utf-8")
+    layers = summary.split("Isolation: ", 1)[1].split(".\n", 1)[0]
+    assert f"isolation: {layers}" in text
     links = re.findall(r'(?:src|href)="([^"]+)"', text)
     assert links
     for link in links:

@@ -23,6 +23,7 @@ from figproof.deposit.replication import (
 )
 from figproof.report.html import banner, chip, document, switch
 from figproof.report.html import escape as _e
+from figproof.report.markdown import isolation_words
 
 #: The folder beside the page that holds its images.
 IMAGES = "img"
@@ -62,6 +63,7 @@ def _header(rep: Replication) -> str:
     facts = [_e(headline(rep)), f"figproof {_e(rep.version)}"]
     if rep.sha256:
         facts.append(f"archive SHA-256 <code>{_e(rep.sha256[:16])}</code>…")
+    facts.append(f"isolation: {_e(isolation_words(rep.runs))}")
     word = "REPRODUCED" if rep.reproduced else "NOT REPRODUCED"
     return banner(word, rep.reproduced, f"Replication report for <code>{_e(rep.deposit)}</code>", chips, facts)
 

@@ -25,6 +25,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from figproof.model.findings import CheckResult, Finding
+from figproof.report.markdown import isolation_words
 
 Box = tuple[float, float, float, float]
 _RANK = {"error": 0, "warning": 1, "note": 2}
@@ -135,6 +136,7 @@ def _header(result: CheckResult, provenance: Mapping[str, Any]) -> str:
         facts.append(f"commit <code>{_e(str(commit)[:12])}</code>")
     if provenance.get("date"):
         facts.append(_e(provenance["date"]))
+    facts.append(f"isolation: {_e(isolation_words(result.runs))}")
     return banner(verdict.upper(), s.passed, f"figproof report for <code>{_e(result.root)}</code>", chip_html,
                   facts)
 

@@ -43,7 +43,8 @@ def _threshold(result: CheckResult) -> str:
     return f"the build fails on {levels[result.fail_on]}"
 
 
-def _isolation(runs: tuple[ScriptRun, ...]) -> str:
+def isolation_words(runs: tuple[ScriptRun, ...]) -> str:
+    """The layers in force for these runs, in words ("kernel write confinement (Landlock), ..., time limit")."""
     # how the repo was shown: every method some run used; the other layers: only when every run had them
     seen = [tag for tag in _ISOLATION if runs and (any if tag.startswith("repo-") else all)(
         tag in r.isolation for r in runs if r.isolation)]
@@ -157,7 +158,7 @@ def render(result: CheckResult, *, images: Mapping[str, str] | None = None, timi
     images = images or {}
     lines = [_headline(result), "", *_tree_changes(result)]
     lines.append(f"figproof {result.version} re-ran the figure scripts of `{result.root}`; {_threshold(result)}. "
-                 f"Isolation: {_isolation(result.runs)}.")
+                 f"Isolation: {isolation_words(result.runs)}.")
     lines.append("")
     if visual:
         found_at = f" ({visual_where})" if visual_where else ""
