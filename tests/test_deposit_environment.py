@@ -118,6 +118,9 @@ def test_failures_are_named_from_the_libraries_own_messages(tmp_path) -> None:
                  ("api-removed", "pandas 2.0 removed a reader/writer argument")),
         "e.py": (_raised(lambda: matplotlib.cm.get_cmap("viridis")),
                  ("api-removed", "matplotlib 3.9 removed matplotlib.cm.get_cmap")),
+        # matplotlib 3.9.0 API changes: register_cmap and unregister_cmap removed with get_cmap
+        "e2.py": (_raised(lambda: matplotlib.cm.register_cmap(name="lab", cmap=matplotlib.colormaps["viridis"])),
+                  ("api-removed", "matplotlib 3.9 removed matplotlib.cm.get_cmap, register_cmap")),
         "f.py": (_raised(lambda: pd.read_excel(xlsx)) if not _has("openpyxl") else ImportError("Missing optional "
                  "dependency 'openpyxl'.  Use pip or conda to install openpyxl."), ("package-missing", "openpyxl")),
         "g.py": (ModuleNotFoundError("No module named 'pandas.core.indexes.numeric'"), ("pickle-version", "pandas")),

@@ -100,8 +100,11 @@ API_CHANGES: tuple[ApiChange, ...] = (
                                                   r"`np\.\w+` was removed in the NumPy 2\.0 release"),
               what="NumPy 2.0 removed a namespace alias the script uses (np.NaN, np.Inf, np.float_, np.product ...; "
                    "see the NumPy 2.0 migration guide)"),
-    ApiChange(library="matplotlib", pattern=re.compile(r"module 'matplotlib\.cm' has no attribute 'get_cmap'"),
-              what="matplotlib 3.9 removed matplotlib.cm.get_cmap (use matplotlib.colormaps[name])"),
+    ApiChange(library="matplotlib",
+              pattern=re.compile(r"module 'matplotlib\.cm' has no attribute "
+                                 r"'(get_cmap|register_cmap|unregister_cmap)'"),
+              what="matplotlib 3.9 removed matplotlib.cm.get_cmap, register_cmap and unregister_cmap (use "
+                   "matplotlib.colormaps[name] and matplotlib.colormaps.register)"),
     ApiChange(library="matplotlib", pattern=re.compile(r"'seaborn[\w-]*' (is )?not (found|a valid package style)"),
               what="matplotlib 3.6 renamed the 'seaborn' styles to 'seaborn-v0_8-...'"),
     ApiChange(library="matplotlib", pattern=re.compile(r"unexpected keyword argument '(normed|hold|b)'"),
