@@ -54,6 +54,13 @@ def test_fires(name: str, found: dict[str, list]) -> None:
 
 
 @pytest.mark.slow
+def test_hue_levels_are_named_by_their_legend_labels(found: dict[str, list]) -> None:
+    # seaborn draws the hue levels as one unlabelled collection; its legend names each colour
+    msg = next(f.message for f in found["fires_seaborn_hue_points.py"] if f.rule == "colours-confusable-cvd")
+    assert "'forest' (#d62728)" in msg and "'meadow' (#2ca02c)" in msg, msg
+
+
+@pytest.mark.slow
 def test_errorbar_series_are_named_by_their_legend_labels(found: dict[str, list]) -> None:
     # the legend names each errorbar container; the clash is told in those names, not as bare hex lines
     msg = next(f.message for f in found["fires_legend_errorbar_lines.py"] if f.rule == "colours-confusable-cvd")

@@ -523,6 +523,13 @@ def test_pale_steps_of_a_ramp_are_the_design() -> None:
     assert run(colour.low_contrast, figure(axes(lines=[line([0, 1], [0, 1], color=hexrgba("#ffff00"))])))
 
 
+def test_figure_text_is_called_figure_text() -> None:
+    # text placed on the figure (fig.text) has role "text": the message says "figure text", not "text text"
+    pale = figure(axes(texts=[text("Panel key", "#dddddd", role="text", in_axes=False)]))
+    (hit,) = run(colour.low_contrast, pale)
+    assert hit.message.startswith("figure text 'Panel key' in #dddddd")
+
+
 def test_numbers_on_marks_are_held_to_wcag_large_text() -> None:
     # WCAG 2.1 SC 1.4.3: 3:1 for large text. White on tab:orange is 2.53:1 (WCAG 2.1 formula); white on
     # #1f77b4 is 4.6:1. seaborn 0.13.2 (matrix.py, _annotate_heatmap) writes white on cells of relative

@@ -439,11 +439,11 @@ class _AxesExtractor:
         self.patches.append(Patch(kind="legend", display_box=box, facecolor=_rgba(frame.get_facecolor()),
                                   edgecolor=_rgba(frame.get_edgecolor()), zorder=float(leg.get_zorder()),
                                   source=_src(leg)))
-        for handle in getattr(leg, "legend_handles", []) or []:
+        for handle, text in zip(getattr(leg, "legend_handles", []) or [], leg.get_texts(), strict=False):
             color = _handle_color(handle)
             if color is not None:
                 self.patches.append(Patch(kind="legend-entry", facecolor=color, zorder=float(leg.get_zorder()),
-                                          label=""))
+                                          label=text.get_text()))
         return labels, box
 
     def build(self, samples: list[Sample]) -> Axes:

@@ -31,6 +31,7 @@ once, and two series drawn in the same base colour or with the same label are on
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
@@ -177,6 +178,13 @@ def looks_sequential(rgb: np.ndarray) -> bool:
     return bool(np.max(np.abs(steps)) <= 70.0 and (np.all(steps >= -20.0) or np.all(steps <= 20.0)))
 
 
+def on_a_ramp(rgba: Any) -> bool:
+    """Three or more distinct colours (RGBA rows) that step along one lightness ramp: a map, not categories."""
+    rows = np.asarray(rgba, float).reshape(-1, 4)
+    rows = distinct_rows(rows)[:, :3] if rows.shape[0] else rows[:, :3]
+    return rows.shape[0] >= 3 and looks_sequential(rows)
+
+
 def _same_color(a: np.ndarray, b: np.ndarray) -> bool:
     return bool(np.max(np.abs(a[:3] - b[:3])) <= 0.02)
 
@@ -184,6 +192,12 @@ def _same_color(a: np.ndarray, b: np.ndarray) -> bool:
 def _legend_colors(ax: Axes) -> np.ndarray:
     rows = [p.facecolor for p in ax.patches if p.kind == "legend-entry"]
     return cs.as_rgba(np.asarray(rows, float)) if rows else np.zeros((0, 4))
+
+
+def _legend_name(ax: Axes, row: np.ndarray) -> str:
+    """The legend's words for a colour (seaborn's hue levels: the bars carry no label, the legend does)."""
+    return next((public_label(p.label) for p in ax.patches if p.kind == "legend-entry" and p.label
+                 and _same_color(row, np.asarray(p.facecolor, float))), "")
 
 
 @dataclass(frozen=True, slots=True)
@@ -262,7 +276,11 @@ def _keyed_by_colour(ax: Axes, artists: list[_Artist]) -> list[_Artist]:
             keep = [row for row in art.colors if any(_same_color(row, c) for c in legend)]
             if not keep and art.label and art.label in labels:
                 keep = list(art.colors)
-            if keep:
+            if keep and not art.label and all(_legend_name(ax, row) for row in keep):
+                # an unlabelled artist of several legend colours (seaborn's hue bars): one series per level
+                out += [_Artist(np.asarray([row]), _legend_name(ax, row), art.what, art.source, art.span,
+                                style=art.style) for row in keep]
+            elif keep:
                 out.append(_Artist(np.asarray(keep), art.label, art.what, art.source, art.span, style=art.style))
             continue
         out.append(art)
@@ -316,8 +334,7 @@ def axes_series(ax: Axes, *, palette_max_colors: float, max_colors: float) -> li
     # several artists of one kind whose colours step along a ramp (lines drawn from a sequential map)
     # are a map too
     for what in {s.what for s in found}:
-        same = np.array([s.rgba[:3] for s in found if s.what == what])
-        if same.shape[0] >= 3 and looks_sequential(distinct_rows(np.c_[same, np.ones(len(same))])[:, :3]):
+        if on_a_ramp([(*s.rgba[:3], 1.0) for s in found if s.what == what]):
             found = [s for s in found if s.what != what]
     colors = np.array([s.rgba[:3] for s in found]) if found else np.zeros((0, 3))
     if looks_sequential(distinct_rows(np.c_[colors, np.ones(len(colors))])[:, :3] if len(colors) else colors):
@@ -346,13 +363,9 @@ def ramp_kinds(per_axes: list[list[Series]]) -> set[str]:
     Facets of one plot share its palette: a sequential hue palette split over panels, two or three
     levels in each, is still a map of an ordered value.
     """
-    kinds: set[str] = set()
-    for what in {s.what for series in per_axes for s in series}:
-        rgb = np.array([s.rgba[:3] for series in per_axes for s in series if s.what == what])
-        rows = distinct_rows(np.c_[rgb, np.ones(len(rgb))])[:, :3]
-        if rows.shape[0] >= 3 and looks_sequential(rows):
-            kinds.add(what)
-    return kinds
+    kinds = {s.what for series in per_axes for s in series}
+    return {what for what in kinds
+            if on_a_ramp([(*s.rgba[:3], 1.0) for series in per_axes for s in series if s.what == what])}
 
 
 def axes_pairs(figure: FigureModel, knobs: Knobs) -> list[AxesPairs]:

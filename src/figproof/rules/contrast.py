@@ -22,6 +22,7 @@ from figproof.rules._series import (
     distinct_rows,
     figure_background,
     looks_sequential,
+    on_a_ramp,
     opaque,
     public_label,
     visible_colors,
@@ -170,10 +171,7 @@ _NOUNS = {"mark": ("mark", "marks"), "text": ("group of texts", "groups of texts
 
 def _lines_on_a_ramp(figure: FigureModel) -> bool:
     """The figure's data lines take three or more colours along one lightness ramp (a sequential palette)."""
-    rgb = np.array([ln.color for ax in figure.axes for ln in ax.lines if ln.role == "data" and ln.x.size],
-                   float).reshape(-1, 4)
-    rows = distinct_rows(rgb)[:, :3] if rgb.shape[0] else rgb[:, :3]
-    return rows.shape[0] >= 3 and looks_sequential(rows)
+    return on_a_ramp([ln.color for ax in figure.axes for ln in ax.lines if ln.role == "data" and ln.x.size])
 
 
 def _one_per_figure(found: list[Hit], noun: str) -> Hit:
@@ -193,8 +191,7 @@ def _one_per_figure(found: list[Hit], noun: str) -> Hit:
                key=f"{noun}s:" + "|".join(sorted(h.key for h in found)), details=details)
 
 
-_TEXT_LIMIT = {"normal": lambda k: k["text_ratio"], "large": lambda k: k["large_text_ratio"],
-               "mark": lambda k: k["mark_text_ratio"]}
+_TEXT_LIMIT = {"normal": "text_ratio", "large": "large_text_ratio", "mark": "mark_text_ratio"}  # knob names
 _TEXT_KIND = {"normal": "normal text (WCAG 2.1)", "large": "large text (WCAG 2.1)",
               "mark": "text on marks (WCAG 2.1, as for large text)"}
 
@@ -214,14 +211,15 @@ def _text_hits(ax: Axes, figure: FigureModel, knobs: Knobs) -> Iterator[tuple[fl
         on_mark = text.backdrop is not None and text.in_axes and text.role != "legend" and text.background is None
         kind = "mark" if on_mark and knobs["strict_wcag"] < 0.5 else \
             "large" if is_large_text(text, knobs["large_size"], knobs["large_bold_size"]) or on_mark else "normal"
-        if ratio < _TEXT_LIMIT[kind](knobs):
+        if ratio < knobs[_TEXT_LIMIT[kind]]:
             groups.setdefault((text.role, cs.to_hex(fg), cs.to_hex(bg), kind), []).append((text, ratio))
     for (role, fg_hex, bg_hex, kind), items in groups.items():
-        limit = _TEXT_LIMIT[kind](knobs)
+        limit = knobs[_TEXT_LIMIT[kind]]
         size = _TEXT_KIND[kind]
         ratio = min(r for _, r in items)
         quoted = ", ".join(f"'{t.text.strip()[:30]}'" for t, _ in items[:3]) + (", ..." if len(items) > 3 else "")
-        what = f"{role} text {quoted}" if len(items) == 1 else f"{len(items)} {role} texts ({quoted})"
+        noun = "figure" if role == "text" else role  # text placed on the figure, outside any axes
+        what = f"{noun} text {quoted}" if len(items) == 1 else f"{len(items)} {noun} texts ({quoted})"
         yield ratio, Hit(message=f"{what} in {fg_hex} is hard to read on {_colour_words(bg_hex)}: contrast "
                                  f"{_floor2(ratio)}:1, below {limit:g}:1 for {size}",
                          source=items[0][0].source, axes=ax.index, key=f"text:{role}:{fg_hex}:{bg_hex}")
@@ -277,8 +275,7 @@ def _marks(ax: Axes, bg: np.ndarray, knobs: Knobs, ramp: bool = False) -> Iterat
         if not strict and faces.ndim == 2 and faces.shape[0] and faces.shape[1] == 4 \
                 and float(np.nanmax(faces[:, 3])) <= DENSITY_ALPHA:
             continue  # see-through markers show density by design; their faintness is points-hidden's business
-        if not strict and faces.ndim == 2 and faces.shape[0] >= 3 and faces.shape[1] == 4 \
-                and looks_sequential(distinct_rows(faces)[:, :3]):
+        if not strict and faces.ndim == 2 and faces.shape[1] == 4 and on_a_ramp(faces):
             continue  # points coloured along a ramp by an ordered value: its pale steps are the design
         sizes = np.asarray(ps.sizes, float)
         large = bool(sizes.size and np.sqrt(np.nanmin(sizes)) >= knobs["large_mark_size"])

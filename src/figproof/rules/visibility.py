@@ -429,9 +429,9 @@ def point_set_problems(ax: Axes, i: int, ps: PointSet, figure: FigureModel, k: d
     # markers drawn see-through already show density (the remedy for overplotting), and markers along a
     # drawn line show its course: their overlap is not reported
     alpha = _see_through(ps)
-    see_through = alpha <= k["density_alpha"] and \
-        _deep_share(kx, ky, float(np.median(radius)), alpha, k["grid_above"]) < k["duplicate_error"]
-    remedied = see_through or _on_a_line(ax, ps)
+    # the stack depth is measured only for an overlap that would otherwise be reported
+    remedied = severity is not None and (_on_a_line(ax, ps) or (alpha <= k["density_alpha"] and _deep_share(
+        kx, ky, float(np.median(radius)), alpha, k["grid_above"]) < k["duplicate_error"]))
     if severity is not None and not remedied:
         dup_text = f", {dups} of them drawn on exactly the same spot" if dups else ""
         yield Hit(message=(f"{counted(hidden, m, 'marker', 'markers')} sit almost on top of a neighbour "
