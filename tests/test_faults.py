@@ -530,3 +530,26 @@ def test_an_overlay_the_child_cannot_mount_is_one_line(tmp_path: Path, monkeypat
                                                      r"FIGPROOF_REPO_VIEW=copy"):
             execute_all([Task(script="figures/bars.py")], options, FreshInterpreter())
     assert leftovers(tmp_path) == []
+
+
+def test_removing_a_folder_that_another_check_empties_meanwhile_never_raises(tmp_path: Path,
+                                                                              monkeypatch: pytest.MonkeyPatch) -> None:
+    # two checks at once (two test workers, two CI jobs): a sweep may find a subfolder gone when it opens it;
+    # shutil.rmtree then reports os.open, which the clean-up must not call again without its flags
+    from figproof.run.scratch import remove_tree
+
+    tree = tmp_path / "figproof-run"
+    (tree / "copy" / "renders").mkdir(parents=True)
+    (tree / "copy" / "renders" / "figure-1.png").write_bytes(b"x")
+    real_open = os.open
+
+    def vanished(path: object, flags: int, *args: object, **kwargs: object) -> int:
+        if str(path).endswith("renders"):
+            raise FileNotFoundError(errno.ENOENT, "No such file or directory", str(path))
+        return real_open(path, flags, *args, **kwargs)  # type: ignore[arg-type]
+
+    monkeypatch.setattr(os, "open", vanished)
+    remove_tree(tree)  # the docstring's promise: never raises
+    monkeypatch.undo()
+    remove_tree(tree)
+    assert not tree.exists()

@@ -176,7 +176,11 @@ def remove_tree(path: Path) -> None:
             os.chmod(os.path.dirname(name), 0o700)
             if os.path.isdir(name) and not os.path.islink(name):
                 os.chmod(name, 0o700)
-            func(name)
+            if func in (os.rmdir, os.unlink, os.remove):
+                func(name)
+            else:
+                # rmtree could not open or list a folder (gone already, or no permission): try it once more
+                shutil.rmtree(name, ignore_errors=True)
         except OSError:
             pass
 
