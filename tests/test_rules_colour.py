@@ -550,3 +550,22 @@ def test_empty_legend_handle_lines_draw_nothing() -> None:
     handle = line([], [], color=hexrgba("#333333"), label="T1")
     fig = figure(axes(lines=[*drawn, handle]))
     assert run(colour.low_contrast, fig) == [] and run(colour.colours_confusable_cvd, fig) == []
+
+
+def test_one_pale_bar_is_called_a_bar() -> None:
+    # yellow on white is 1.07:1 (WCAG 2.1 relative luminance): one bar reads "bar ... is", not "bars ... is"
+    (hit,) = run(colour.low_contrast, figure(axes(bars=[bars([2.0], color=hexrgba("#ffff00"))])))
+    assert hit.message.startswith("bar in #ffff00 is hard to see")
+
+
+def test_a_colour_map_made_from_a_list_has_no_name() -> None:
+    # matplotlib names a ListedColormap "unnamed" (and LinearSegmentedColormap.from_list "from_list"): placeholders
+    from matplotlib.cm import ScalarMappable
+    from matplotlib.colors import LinearSegmentedColormap, ListedColormap
+
+    from figproof.child.extract import _mapping
+
+    for cmap in (ListedColormap(["#d08893", "#b99673", "#99a073"]),
+                 LinearSegmentedColormap.from_list("from_list", ["#000000", "#ffffff"])):
+        assert _mapping("mesh", ScalarMappable(cmap=cmap)).name == ""
+    assert _mapping("mesh", ScalarMappable(cmap="viridis")).name == "viridis"

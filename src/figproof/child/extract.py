@@ -91,12 +91,18 @@ def _cmap_samples(cmap: Any) -> tuple[np.ndarray, int]:
     return samples, int(getattr(cmap, "N", CMAP_SAMPLES))
 
 
+# the names matplotlib gives a colour map made from a list of colours (ListedColormap, from_list): no name
+_PLACEHOLDER_MAP_NAMES = ("unnamed", "from_list")
+
+
 def _mapping(kind: ColorMappedKind, mappable: Any, shape: tuple[int, ...] = ()) -> ColorMapping:
     samples, n = _cmap_samples(mappable.get_cmap())
     norm = mappable.norm
     vmin = None if norm.vmin is None else float(norm.vmin)
     vmax = None if norm.vmax is None else float(norm.vmax)
-    return ColorMapping(kind=kind, name=str(getattr(mappable.get_cmap(), "name", "")), samples=samples,
+    name = str(getattr(mappable.get_cmap(), "name", ""))
+    name = "" if name in _PLACEHOLDER_MAP_NAMES else name
+    return ColorMapping(kind=kind, name=name, samples=samples,
                         n_colors=n, shape=shape, vmin=vmin, vmax=vmax, source=_src(mappable))
 
 

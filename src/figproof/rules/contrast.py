@@ -356,7 +356,8 @@ def _mark_hits(ax: Axes, figure: FigureModel, knobs: Knobs, ramp: bool = False) 
         beneath = m.under[min(worst, m.under.shape[0] - 1)]
         shown = cs.to_hex(cs.blend_over(np.nan_to_num(rgba[worst]), beneath)[0])
         under_hex = cs.to_hex(beneath)
-        name = f"{m.what} of '{m.label}'" if m.label else m.what
+        noun = m.what.rstrip("s") if r.size == 1 else m.what  # one bar, one marker
+        name = f"{noun} of '{m.label}'" if m.label else noun
         kind = "large filled marks" if m.large and m.limit < knobs["mark_ratio"] else "graphical objects (WCAG 2.1)"
         bad = int((r < m.limit).sum())
         head = name if r.size == 1 or bad == r.size else f"{counted(bad, r.size)} {name}"
