@@ -29,6 +29,29 @@ def _event(ax: Any, x: float, y: float) -> Any:
     return MouseEvent("motion_notify_event", ax.figure.canvas, x, y)  # type: ignore[arg-type]
 
 
+class _Point:
+    """What a mouse event's ``x``, ``y`` and ``canvas`` are (pixels cut to whole numbers, as matplotlib does):
+    all that the ``contains`` tests of patches, lines and plain collections read.  Building a real event
+    also finds the axes under the point, which costs more than the test."""
+
+    __slots__ = ("canvas", "x", "y")
+
+    def __init__(self, canvas: Any, x: float, y: float) -> None:
+        self.canvas, self.x, self.y = canvas, int(x), int(y)
+
+
+def _reads_position_only(artist: Any) -> bool:
+    """Whether :func:`_color_at` reads only the event's position for ``artist`` (images read its data
+    coordinates; a collection class with a ``contains`` of its own may read anything)."""
+    from matplotlib.collections import Collection
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
+
+    if isinstance(artist, (Line2D, Patch)):
+        return True
+    return isinstance(artist, Collection) and type(artist).contains is Collection.contains
+
+
 def _color_at(artist: Any, event: Any) -> np.ndarray | None:
     """The colour ``artist`` paints at the event's point, or None when it does not cover it."""
     from matplotlib.collections import Collection
@@ -114,19 +137,37 @@ def backdrop_at(ax: Any, x: float, y: float, below: float, skip: Any = None) -> 
     None when nothing but the axes face is there (the rules then use the face itself).  ``skip`` is the
     mark's own artist.
     """
+    return _blend(ax, _beneath(ax, below, skip), x, y)
+
+
+def backdrops_at(ax: Any, points: Any, below: float, skip: Any = None) -> list[RGBA | None]:
+    """:func:`backdrop_at` for each (x, y) display point of one mark: the artists beneath are listed once."""
+    artists = _beneath(ax, below, skip)
+    return [_blend(ax, artists, float(x), float(y)) for x, y in points]
+
+
+def _beneath(ax: Any, below: float, skip: Any) -> list[Any]:
+    """The visible artists of ``ax`` a mark at z-order ``below`` may sit on, in drawing order."""
     from matplotlib.collections import Collection
     from matplotlib.image import AxesImage
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
 
-    event = _event(ax, x, y)
     children = [(float(a.get_zorder()), i, a) for i, a in enumerate(ax.get_children())
                 if a is not skip and a is not ax.patch and a.get_visible()
                 and isinstance(a, (AxesImage, Patch, Collection, Line2D)) and float(a.get_zorder()) <= below]
     if ax.get_legend() is not None:
         children = [c for c in children if c[2] is not ax.get_legend()]
+    return [artist for _, _, artist in sorted(children, key=lambda c: (c[0], c[1]))]
+
+
+def _blend(ax: Any, artists: list[Any], x: float, y: float) -> RGBA | None:
+    """The colours ``artists`` paint at (x, y) blended over the axes face; None when none covers it."""
+    if not artists:
+        return None
+    event = _Point(ax.figure.canvas, x, y) if all(map(_reads_position_only, artists)) else _event(ax, x, y)
     stack = []
-    for _, _, artist in sorted(children, key=lambda c: (c[0], c[1])):
+    for artist in artists:
         color = _color_at(artist, event)
         if color is not None and color[3] > 0.0:
             stack.append(color)
@@ -140,4 +181,4 @@ def backdrop_at(ax: Any, x: float, y: float, below: float, skip: Any = None) -> 
     return (float(seen[0]), float(seen[1]), float(seen[2]), 1.0)
 
 
-__all__ = ["backdrop_at"]
+__all__ = ["backdrop_at", "backdrops_at"]

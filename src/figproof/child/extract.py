@@ -22,7 +22,7 @@ from matplotlib.lines import Line2D
 from matplotlib.patches import Rectangle
 from matplotlib.text import Text as MplText
 
-from figproof.child.backdrop import backdrop_at
+from figproof.child.backdrop import backdrop_at, backdrops_at
 from figproof.child.capture import Recorder
 from figproof.model.records import (
     RGBA,
@@ -564,11 +564,10 @@ def _backdrops(ax: MplAxes, display: np.ndarray, zorder: float, artist: Any) -> 
     if display.shape[0] == 0 or display.shape[0] > _BACKDROP_POINTS:
         return np.zeros((0, 4))
     out = np.full((display.shape[0], 4), np.nan)
-    for k, (x, y) in enumerate(display):
-        if np.isfinite(x) and np.isfinite(y):
-            under = backdrop_at(ax, float(x), float(y), zorder, skip=artist)
-            if under is not None:
-                out[k] = under
+    finite = np.flatnonzero(np.isfinite(display).all(axis=1))
+    for k, under in zip(finite, backdrops_at(ax, display[finite], zorder, skip=artist), strict=True):
+        if under is not None:
+            out[k] = under
     return out
 
 
