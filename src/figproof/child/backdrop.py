@@ -137,13 +137,15 @@ def backdrop_at(ax: Any, x: float, y: float, below: float, skip: Any = None) -> 
     None when nothing but the axes face is there (the rules then use the face itself).  ``skip`` is the
     mark's own artist.
     """
-    return _blend(ax, _beneath(ax, below, skip), x, y)
+    artists = _beneath(ax, below, skip)
+    return _blend(ax, artists, _position_only(artists), x, y)
 
 
 def backdrops_at(ax: Any, points: Any, below: float, skip: Any = None) -> list[RGBA | None]:
     """:func:`backdrop_at` for each (x, y) display point of one mark: the artists beneath are listed once."""
     artists = _beneath(ax, below, skip)
-    return [_blend(ax, artists, float(x), float(y)) for x, y in points]
+    position_only = _position_only(artists)
+    return [_blend(ax, artists, position_only, float(x), float(y)) for x, y in points]
 
 
 def _beneath(ax: Any, below: float, skip: Any) -> list[Any]:
@@ -161,11 +163,16 @@ def _beneath(ax: Any, below: float, skip: Any) -> list[Any]:
     return [artist for _, _, artist in sorted(children, key=lambda c: (c[0], c[1]))]
 
 
-def _blend(ax: Any, artists: list[Any], x: float, y: float) -> RGBA | None:
+def _position_only(artists: list[Any]) -> bool:
+    """Whether every one of ``artists`` reads only an event's position (decided once per set of artists)."""
+    return all(map(_reads_position_only, artists))
+
+
+def _blend(ax: Any, artists: list[Any], position_only: bool, x: float, y: float) -> RGBA | None:
     """The colours ``artists`` paint at (x, y) blended over the axes face; None when none covers it."""
     if not artists:
         return None
-    event = _Point(ax.figure.canvas, x, y) if all(map(_reads_position_only, artists)) else _event(ax, x, y)
+    event = _Point(ax.figure.canvas, x, y) if position_only else _event(ax, x, y)
     stack = []
     for artist in artists:
         color = _color_at(artist, event)
